@@ -1,0 +1,77 @@
+"""Index layout of the flat arrays the kernel works on.
+
+The kernel sees no scenario objects: a state vector, a parameter vector and an event table,
+all float arrays, indexed by the integer constants below. :mod:`dcsim.engine.assemble` fills
+them from a :class:`~dcsim.scenario.schema.Scenario`.
+"""
+
+# State vector x
+X_CURRENT = 0  # armature current [A]
+X_SPEED = 1  # shaft speed [rad/s]
+X_POSITION = 2  # shaft angle [rad]
+X_BUS = 3  # bus capacitor voltage [V] (unused without a capacitor)
+N_STATE = 4
+
+# Parameter vector p (SI)
+P_R = 0  # armature resistance [ohm]
+P_L = 1  # armature inductance [H]
+P_K = 2  # torque / back-EMF constant [N*m/A]
+P_J = 3  # total inertia, rotor + load [kg*m^2]
+P_B = 4  # viscous friction [N*m*s/rad]
+P_TC = 5  # Coulomb friction [N*m]
+P_TL = 6  # load torque [N*m]
+P_LOCK = 7  # 1.0 when the rotor is locked
+P_VS = 8  # source open-circuit voltage [V]
+P_RS = 9  # source resistance [ohm]
+P_C = 10  # bus capacitance [F]
+P_REGEN = 11  # 1.0 when the source takes current back
+P_VCMD = 12  # commanded armature voltage [V]
+N_PARAM = 13
+
+# Accumulators (integrated at full rate by the kernel)
+A_I2T = 0  # integral of i^2 [A^2*s]
+A_SUPPLY = 1  # energy delivered by the ideal source [J]
+A_SOURCE_LOSS = 2  # loss in the source resistance [J]
+A_COPPER = 3  # armature copper loss [J]
+A_FRICTION = 4  # viscous + Coulomb friction loss [J]
+A_LOAD = 5  # energy to the load torque [J]
+A_LOCK = 6  # kinetic energy removed when the rotor is locked by an event [J]
+A_PEAK_I = 7  # largest |i| [A]
+A_PEAK_I_TIME = 8  # when [s]
+A_BUS_MAX = 9  # highest bus voltage [V]
+A_BUS_MIN = 10  # lowest bus voltage [V]
+A_SPLITS = 11  # number of located regime changes (stick/slip, clipping, diode)
+N_ACC = 12
+
+# Recorded columns (kernel order)
+R_TIME = 0
+R_CURRENT = 1
+R_SPEED = 2
+R_POSITION = 3
+R_ARMATURE_V = 4
+R_BUS_V = 5
+R_MOTOR_TORQUE = 6
+R_LOAD_TORQUE = 7
+R_SUPPLY_CURRENT = 8
+R_FRICTION_TORQUE = 9
+R_BRIDGE_CURRENT = 10
+N_REC = 11
+
+RECORD_NAMES = (
+    "time_s",
+    "current_A",
+    "speed_rad_s",
+    "position_rad",
+    "armature_voltage_V",
+    "bus_voltage_V",
+    "motor_torque_Nm",
+    "load_torque_Nm",
+    "supply_current_A",
+    "friction_torque_Nm",
+    "bridge_bus_current_A",
+)
+
+# Kernel exit status
+STATUS_OK = 0
+STATUS_NONFINITE = 1
+STATUS_REGEN_NO_PATH = 2

@@ -1,0 +1,134 @@
+"""``simulate``: scenario -> kernel -> :class:`~dcsim.results.trace.SimulationResult`."""
+
+from __future__ import annotations
+
+import numpy as np
+
+from dcsim.engine import layout as L
+from dcsim.engine.assemble import KernelInputs, assemble
+from dcsim.engine.kernel import run_kernel
+from dcsim.errors import SimulationError
+from dcsim.results.trace import SimulationResult, Trace
+from dcsim.scenario.schema import Scenario
+
+
+def run_inputs(ki: KernelInputs) -> tuple[int, float, np.ndarray, np.ndarray, np.ndarray]:
+    """Run the kernel on assembled inputs; returns (status, t_stop, rec, acc, final state)."""
+    rec = np.zeros((L.N_REC, ki.rows))
+    acc = np.zeros(L.N_ACC)
+    xf = np.zeros(L.N_STATE)
+    status, t_stop, rows = run_kernel(
+        ki.params,
+        ki.state0,
+        ki.has_capacitor,
+        ki.step_s,
+        ki.n_steps,
+        ki.steps_per_row,
+        ki.duration_s,
+        ki.event_time_s,
+        ki.event_index,
+        ki.event_value,
+        rec,
+        acc,
+        xf,
+    )
+    return int(status), float(t_stop), rec[:, :rows], acc, xf
+
+
+def _stop_message(sc: Scenario, ki: KernelInputs, status: int, t_stop: float) -> str:
+    where = f"{sc.source}: run stopped at t = {t_stop:.6g} s: "
+    if status == L.STATUS_REGEN_NO_PATH:
+        return where + (
+            "the motor returns energy to a diode-fed supply (supply.regenerative = false) "
+            "with no bus capacitance, so the bus voltage would rise without limit; give "
+            "supply.capacitance (and a brake resistor), or make the supply regenerative"
+        )
+    fastest = min(ki.time_constants_s.items(), key=lambda kv: kv[1])
+    return where + (
+        f"the state became non-finite; the step {ki.step_s:.3g} s may be too large for the "
+        f"fastest time constant ({fastest[0]}, {fastest[1]:.3g} s) -- remove or lower "
+        "simulation.step -- or the parameters give an unbounded solution"
+    )
+
+
+def energy_account(ki: KernelInputs, acc: np.ndarray, xf: np.ndarray) -> dict[str, float]:
+    """Energy terms of a run [J]; ``energy_from_supply_J`` equals the sum of the others.
+
+    The kinetic and stored terms come from the initial and final states, the others from the
+    kernel's full-rate integrals, so the residual measures the integration error.
+    """
+    p, x0 = ki.params, ki.state0
+    kinetic = 0.5 * p[L.P_J] * (xf[L.X_SPEED] ** 2 - x0[L.X_SPEED] ** 2)
+    stored = 0.5 * p[L.P_L] * (xf[L.X_CURRENT] ** 2 - x0[L.X_CURRENT] ** 2)
+    if ki.has_capacitor:
+        stored += 0.5 * p[L.P_C] * (xf[L.X_BUS] ** 2 - x0[L.X_BUS] ** 2)
+    terms = {
+        "energy_from_supply_J": float(acc[L.A_SUPPLY]),
+        "energy_source_loss_J": float(acc[L.A_SOURCE_LOSS]),
+        "energy_copper_loss_J": float(acc[L.A_COPPER]),
+        "energy_friction_J": float(acc[L.A_FRICTION]),
+        "energy_to_load_J": float(acc[L.A_LOAD]),
+        "energy_shaft_lock_J": float(acc[L.A_LOCK]),
+        "kinetic_energy_change_J": float(kinetic),
+        "stored_energy_change_J": float(stored),
+    }
+    spent = sum(v for k, v in terms.items() if k != "energy_from_supply_J")
+    terms["energy_balance_residual_J"] = terms["energy_from_supply_J"] - spent
+    return terms
+
+
+def simulate(scenario: Scenario) -> SimulationResult:
+    """Run a scenario and return its trace and summary.
+
+    Pure: the same scenario gives the same result.
+
+    Parameters
+    ----------
+    scenario : Scenario
+        A validated scenario (from :func:`dcsim.load_scenario`).
+
+    Returns
+    -------
+    SimulationResult
+        ``.trace`` (columns as in the contract) and ``.summary`` (SI numbers).
+
+    Raises
+    ------
+    ScenarioError
+        Inconsistent parameters found while assembling.
+    SimulationError
+        The run could not go on (the message says when and the likely cause).
+    """
+    ki = assemble(scenario)
+    status, t_stop, rec, acc, xf = run_inputs(ki)
+    if status != L.STATUS_OK:
+        raise SimulationError(_stop_message(scenario, ki, status, t_stop))
+    columns = {name: rec[k] for k, name in enumerate(L.RECORD_NAMES)}
+    summary: dict[str, float | int | str] = {
+        "peak_current_A": float(acc[L.A_PEAK_I]),
+        "peak_current_time_s": float(acc[L.A_PEAK_I_TIME]),
+        "i2t_A2s": float(acc[L.A_I2T]),
+        "final_speed_rad_s": float(xf[L.X_SPEED]),
+        "final_current_A": float(xf[L.X_CURRENT]),
+        "final_position_rad": float(xf[L.X_POSITION]),
+        "peak_bus_voltage_V": float(acc[L.A_BUS_MAX]),
+        "min_bus_voltage_V": float(acc[L.A_BUS_MIN]),
+    }
+    summary.update(energy_account(ki, acc, xf))
+    summary.update(
+        {
+            "duration_s": ki.duration_s,
+            "step_s": ki.step_s,
+            "record_interval_s": ki.record_interval_s,
+            "steps": ki.n_steps,
+            "located_regime_changes": int(acc[L.A_SPLITS]),
+        }
+    )
+    return SimulationResult(
+        scenario=scenario,
+        trace=Trace(columns),
+        summary=summary,
+        step_s=ki.step_s,
+        record_interval_s=ki.record_interval_s,
+        event_times_s=tuple(sorted({float(t) for t in ki.event_time_s})),
+    )

@@ -1,0 +1,94 @@
+"""Result objects of a run: :class:`Trace` (recorded columns) and :class:`SimulationResult`."""
+
+from __future__ import annotations
+
+from collections.abc import Iterator, Mapping
+from dataclasses import dataclass, field
+from typing import TYPE_CHECKING
+
+import numpy as np
+
+if TYPE_CHECKING:
+    from dcsim.scenario.schema import Scenario
+
+TRACE_COLUMNS: tuple[str, ...] = (
+    "time_s",
+    "current_A",
+    "speed_rad_s",
+    "position_rad",
+    "armature_voltage_V",
+    "bus_voltage_V",
+    "motor_torque_Nm",
+    "load_torque_Nm",
+    "supply_current_A",
+)
+"""Columns every trace has, in CSV order (names carry their SI unit)."""
+
+ENERGY_KEYS: tuple[str, ...] = (
+    "energy_from_supply_J",
+    "energy_source_loss_J",
+    "energy_copper_loss_J",
+    "energy_friction_J",
+    "energy_to_load_J",
+    "energy_shaft_lock_J",
+    "kinetic_energy_change_J",
+    "stored_energy_change_J",
+)
+"""Terms of the energy account. ``energy_from_supply_J`` equals the sum of all the others."""
+
+
+@dataclass(frozen=True)
+class Trace(Mapping):
+    """Recorded columns of one run, each a 1-D numpy array of the same length.
+
+    Behaves as a read-only mapping ``name -> array`` (``trace["current_A"]``). Column names
+    carry their SI unit; see :data:`TRACE_COLUMNS`.
+    """
+
+    columns: Mapping[str, np.ndarray]
+
+    def __getitem__(self, name: str) -> np.ndarray:
+        try:
+            return self.columns[name]
+        except KeyError:
+            raise KeyError(f"no trace column {name!r}; columns are {list(self.columns)}") from None
+
+    def __iter__(self) -> Iterator[str]:
+        return iter(self.columns)
+
+    def __len__(self) -> int:
+        return len(self.columns)
+
+    @property
+    def rows(self) -> int:
+        """Number of recorded instants."""
+        return len(self.columns["time_s"])
+
+
+@dataclass(frozen=True)
+class SimulationResult:
+    """Everything one run produced.
+
+    Attributes
+    ----------
+    scenario : Scenario
+        The scenario that was run.
+    trace : Trace
+        Recorded columns.
+    summary : dict
+        Scalar results keyed as in ``summary.json`` (SI numbers), including the energy account
+        (:data:`ENERGY_KEYS`) and ``energy_balance_residual_J``.
+    step_s : float
+        Plant integration step used [s].
+    record_interval_s : float
+        Spacing of trace rows [s].
+    event_times_s : tuple of float
+        Times at which scenario events were applied [s].
+    """
+
+    scenario: Scenario
+    trace: Trace
+    summary: dict
+    step_s: float
+    record_interval_s: float
+    event_times_s: tuple[float, ...] = field(default_factory=tuple)
