@@ -96,7 +96,7 @@ BRIDGE_FULL_POS = 1
 BRIDGE_FULL_NEG = 2
 
 
-@njit(cache=True)
+@njit(cache=True, inline="always")
 def _bridge_state(x, p, has_cap):
     """0: bridge applies the command; 1 / 2: fully on, positive / negative."""
     vc = p[P_VCMD]
@@ -116,7 +116,7 @@ def _bridge_state(x, p, has_cap):
     return BRIDGE_FULL_POS if vc > 0.0 else BRIDGE_FULL_NEG
 
 
-@njit(cache=True)
+@njit(cache=True, inline="always")
 def regime_of(x, p, has_cap):
     """Regime code and Coulomb friction sign at state ``x``."""
     stuck, fsign = friction_state(
@@ -128,7 +128,7 @@ def regime_of(x, p, has_cap):
     return r, fsign
 
 
-@njit(cache=True)
+@njit(cache=True, inline="always")
 def bus_state(x, p, has_cap, r):
     """Bus voltage, armature voltage, bridge bus current and supply current [V, V, A, A]."""
     bridge = (r // 2) % 3
@@ -187,7 +187,7 @@ def system_matrix(r, p, has_cap, a):
     fill_shaft_rows(a, np.zeros(N_STATE), p[P_K], p[P_J], p[P_B], 0.0, stuck)
 
 
-@njit(cache=True)
+@njit(cache=True, inline="always")
 def forcing(r, fsign, p, has_cap, b, dummy):
     """Fill the constant forcing ``b_r`` of the step (``dummy``: a scratch matrix)."""
     b[:] = 0.0
@@ -205,7 +205,7 @@ def forcing(r, fsign, p, has_cap, b, dummy):
         fill_bus_row(dummy, b, p[P_VS], p[P_RS], p[P_C], not blocked, 0.0)
 
 
-@njit(cache=True)
+@njit(cache=True, inline="always")
 def guard(x, p, has_cap, r, fsign):
     """Smallest guard of regime ``r`` at ``x``: >= 0 while the regime holds."""
     g = math.inf
@@ -240,66 +240,74 @@ def guard(x, p, has_cap, r, fsign):
     return g
 
 
-@njit(cache=True)
-def _matvec_add(m, v, out):
-    n = m.shape[0]
-    for i in range(n):
+@njit(cache=True, inline="always")
+def _matvec_add(cache, slot, which, v, out, scale):
+    """``out += scale * cache[slot, which] @ v``, indexing in place.
+
+    Fixed trip counts (N_STATE is a compile-time constant) let LLVM unroll the products, and
+    indexing the cache instead of taking views keeps reference counting out of the loop.
+    """
+    for i in range(N_STATE):
         s = 0.0
-        for j in range(n):
-            s += m[i, j] * v[j]
-        out[i] += s
+        for j in range(N_STATE):
+            s += cache[slot, which, i, j] * v[j]
+        out[i] += scale * s
 
 
-@njit(cache=True)
-def propagate(x, b, e, f1, f2, eh, f1h, f2h, nl_coef, x1, xm, force):
+@njit(cache=True, inline="always")
+def propagate(x, b, cache, slot, nl_coef, x1, xm, force, dg_vec):
     """Advance one (sub-)step exactly for the linear part, ETD2RK for the bus term.
 
-    ``nl_coef`` is ``-v_cmd / C`` [V/s per A/V]: the bus row gets ``nl_coef * i / v``.
-    Writes the end state into ``x1`` and the mid-step state into ``xm``; ``force`` is scratch.
+    ``cache[slot]`` holds the propagators ``e, f1, f2`` of the step and ``eh, f1h, f2h`` of
+    its half (see :func:`store_propagators`). ``nl_coef`` is ``-v_cmd / C``: the bus row gets
+    ``nl_coef * i / v``. Writes the end state into ``x1`` and the mid-step state into ``xm``;
+    ``force`` and ``dg_vec`` are scratch.
     """
-    n = x.shape[0]
-    force[:] = b
+    for k in range(N_STATE):
+        force[k] = b[k]
+        x1[k] = 0.0
+        xm[k] = 0.0
     g0 = 0.0
     if nl_coef != 0.0:
         g0 = nl_coef * x[X_CURRENT] / max(x[X_BUS], 1e-12)
         force[X_BUS] += g0
-    x1[:] = 0.0
-    xm[:] = 0.0
-    _matvec_add(e, x, x1)
-    _matvec_add(f1, force, x1)
-    _matvec_add(eh, x, xm)
-    _matvec_add(f1h, force, xm)
+    _matvec_add(cache, slot, 0, x, x1, 1.0)
+    _matvec_add(cache, slot, 1, force, x1, 1.0)
+    _matvec_add(cache, slot, 3, x, xm, 1.0)
+    _matvec_add(cache, slot, 4, force, xm, 1.0)
     if nl_coef != 0.0:
         ga = nl_coef * x1[X_CURRENT] / max(x1[X_BUS], 1e-12)
-        dg = ga - g0
-        for i in range(n):
-            x1[i] += f2[i, X_BUS] * dg
-            xm[i] += 0.5 * f2h[i, X_BUS] * dg
+        for k in range(N_STATE):
+            dg_vec[k] = 0.0
+        dg_vec[X_BUS] = ga - g0
+        _matvec_add(cache, slot, 2, dg_vec, x1, 1.0)
+        _matvec_add(cache, slot, 5, dg_vec, xm, 0.5)
 
 
-@njit(cache=True)
-def powers(x, p, has_cap, r, fsign, out):
-    """Integrands at ``x``: i^2, source power, source loss, copper, friction, load; bus V."""
+@njit(cache=True, inline="always")
+def powers(x, p, has_cap, r, fsign, work, row):
+    """Integrands at ``x`` into ``work[row]``: i^2, source power, source and copper loss,
+    friction, load; bus voltage."""
     vb, va, ib, isup = bus_state(x, p, has_cap, r)
     i = x[X_CURRENT]
     w = x[X_SPEED]
-    out[0] = i * i
-    out[1] = p[P_VS] * isup
-    out[2] = p[P_RS] * isup * isup
-    out[3] = p[P_R] * i * i
-    out[4] = p[P_B] * w * w + p[P_TC] * fsign * w
-    out[5] = p[P_TL] * w
-    out[6] = vb
+    work[row, 0] = i * i
+    work[row, 1] = p[P_VS] * isup
+    work[row, 2] = p[P_RS] * isup * isup
+    work[row, 3] = p[P_R] * i * i
+    work[row, 4] = p[P_B] * w * w + p[P_TC] * fsign * w
+    work[row, 5] = p[P_TL] * w
+    work[row, 6] = vb
 
 
-@njit(cache=True)
+@njit(cache=True, inline="always")
 def accumulate(x0, xm, x1, hh, t0, p, has_cap, r, fsign, acc, work):
     """Add Simpson's-rule integrals over a (sub-)step and update peaks."""
     w0 = hh / 6.0
     wm = 4.0 * hh / 6.0
-    powers(x0, p, has_cap, r, fsign, work[0])
-    powers(xm, p, has_cap, r, fsign, work[1])
-    powers(x1, p, has_cap, r, fsign, work[2])
+    powers(x0, p, has_cap, r, fsign, work, 0)
+    powers(xm, p, has_cap, r, fsign, work, 1)
+    powers(x1, p, has_cap, r, fsign, work, 2)
     acc[A_I2T] += w0 * (work[0, 0] + work[2, 0]) + wm * work[1, 0]
     acc[A_SUPPLY] += w0 * (work[0, 1] + work[2, 1]) + wm * work[1, 1]
     acc[A_SOURCE_LOSS] += w0 * (work[0, 2] + work[2, 2]) + wm * work[1, 2]
@@ -310,7 +318,7 @@ def accumulate(x0, xm, x1, hh, t0, p, has_cap, r, fsign, acc, work):
     _peaks(x1, t0 + hh, work[2, 6], acc)
 
 
-@njit(cache=True)
+@njit(cache=True, inline="always")
 def _peaks(x, t, bus_V, acc):
     ia = abs(x[X_CURRENT])
     if ia > acc[A_PEAK_I]:
@@ -321,26 +329,31 @@ def _peaks(x, t, bus_V, acc):
 
 
 @njit(cache=True)
-def _mats(r, p, has_cap, hh, a):
+def store_propagators(r, p, has_cap, hh, a, cache, slot):
+    """Build ``A_r`` and store the propagators of steps ``hh`` and ``hh/2`` in ``cache[slot]``."""
     system_matrix(r, p, has_cap, a)
     e, f1, f2 = phi_blocks(a, hh)
     eh, f1h, f2h = phi_blocks(a, 0.5 * hh)
-    return e, f1, f2, eh, f1h, f2h
+    cache[slot, 0] = e
+    cache[slot, 1] = f1
+    cache[slot, 2] = f2
+    cache[slot, 3] = eh
+    cache[slot, 4] = f1h
+    cache[slot, 5] = f2h
 
 
-@njit(cache=True)
-def advance(x, p, has_cap, hh, h_nom, t0, cache, valid, acc, work, vec, a):
+@njit(cache=True, inline="always")
+def advance(
+    x, p, has_cap, hh, h_nom, t0, cache, valid, acc, work, b, x1, xm, xt, xmt, force, dgv, a
+):
     """Advance ``x`` by ``hh`` seconds, locating regime changes; returns (status, time).
 
-    ``vec`` (7, N_STATE) and ``a`` (2, N_STATE, N_STATE) are scratch, so that a step with
-    cached propagators allocates nothing.
+    ``cache[r]`` holds the propagators of the nominal step for regime ``r`` (built on first
+    use, dropped by events); slot ``N_REGIME`` is scratch for shortened steps. ``b`` ...
+    ``dgv`` (vectors) and ``a`` (matrix) are scratch too, so a step on cached propagators
+    allocates nothing.
     """
-    b = vec[0]
-    x1 = vec[1]
-    xm = vec[2]
-    xt = vec[3]
-    xmt = vec[4]
-    force = vec[5]
+    scratch = N_REGIME
     remaining = hh
     t = t0
     splits = 0
@@ -357,27 +370,17 @@ def advance(x, p, has_cap, hh, h_nom, t0, cache, valid, acc, work, vec, a):
         if abs(step - h_nom) <= 1e-7 * h_nom:
             step = h_nom
             if not valid[r]:
-                e, f1, f2, eh, f1h, f2h = _mats(r, p, has_cap, h_nom, a[0])
-                cache[r, 0] = e
-                cache[r, 1] = f1
-                cache[r, 2] = f2
-                cache[r, 3] = eh
-                cache[r, 4] = f1h
-                cache[r, 5] = f2h
+                store_propagators(r, p, has_cap, h_nom, a, cache, r)
                 valid[r] = True
-            e = cache[r, 0]
-            f1 = cache[r, 1]
-            f2 = cache[r, 2]
-            eh = cache[r, 3]
-            f1h = cache[r, 4]
-            f2h = cache[r, 5]
+            slot = r
         else:
-            e, f1, f2, eh, f1h, f2h = _mats(r, p, has_cap, step, a[0])
-        forcing(r, fsign, p, has_cap, b, a[1])
+            store_propagators(r, p, has_cap, step, a, cache, scratch)
+            slot = scratch
+        forcing(r, fsign, p, has_cap, b, a)
         nl = 0.0
         if has_cap and (r // 2) % 3 == BRIDGE_CONTROL:
             nl = -p[P_VCMD] / p[P_C]
-        propagate(x, b, e, f1, f2, eh, f1h, f2h, nl, x1, xm, force)
+        propagate(x, b, cache, slot, nl, x1, xm, force, dgv)
         g0 = guard(x, p, has_cap, r, fsign)
         gm = guard(xm, p, has_cap, r, fsign)
         g1 = guard(x1, p, has_cap, r, fsign)
@@ -400,8 +403,8 @@ def advance(x, p, has_cap, hh, h_nom, t0, cache, valid, acc, work, vec, a):
                     s = 0.5 * (lo + hi)
                 if not (lo < s < hi):
                     s = 0.5 * (lo + hi)
-                e2, f12, f22, eh2, f1h2, f2h2 = _mats(r, p, has_cap, s * step, a[0])
-                propagate(x, b, e2, f12, f22, eh2, f1h2, f2h2, nl, xt, xmt, force)
+                store_propagators(r, p, has_cap, s * step, a, cache, scratch)
+                propagate(x, b, cache, scratch, nl, xt, xmt, force, dgv)
                 gs = guard(xt, p, has_cap, r, fsign)
                 if gs < 0.0:
                     hi = s
@@ -416,8 +419,8 @@ def advance(x, p, has_cap, hh, h_nom, t0, cache, valid, acc, work, vec, a):
                         ghi *= 0.5
                     side = 1
             sub = hi * step
-            e2, f12, f22, eh2, f1h2, f2h2 = _mats(r, p, has_cap, sub, a[0])
-            propagate(x, b, e2, f12, f22, eh2, f1h2, f2h2, nl, x1, xm, force)
+            store_propagators(r, p, has_cap, sub, a, cache, scratch)
+            propagate(x, b, cache, scratch, nl, x1, xm, force, dgv)
             if fsign != 0.0 and (r % 2) == 0 and x1[X_SPEED] * fsign <= 0.0:
                 x1[X_SPEED] = 0.0  # the shaft reaches rest exactly here
             accumulate(x, xm, x1, sub, t, p, has_cap, r, fsign, acc, work)
@@ -432,7 +435,8 @@ def advance(x, p, has_cap, hh, h_nom, t0, cache, valid, acc, work, vec, a):
                     return STATUS_REGEN_NO_PATH, t
         else:
             accumulate(x, xm, x1, step, t, p, has_cap, r, fsign, acc, work)
-            x[:] = x1
+            for k in range(N_STATE):
+                x[k] = x1[k]
             t += step
             remaining = 0.0
         for k in range(N_STATE):
@@ -513,11 +517,17 @@ def run_kernel(p0, x0, has_cap, h, n_steps, n_sub, duration, ev_t, ev_i, ev_v, r
     """
     p = p0.copy()
     x = x0.copy()
-    cache = np.zeros((N_REGIME, 6, N_STATE, N_STATE))
+    cache = np.zeros((N_REGIME + 1, 6, N_STATE, N_STATE))
     valid = np.zeros(N_REGIME, dtype=np.bool_)
     work = np.zeros((3, 7))
-    vec = np.zeros((7, N_STATE))
-    amat = np.zeros((2, N_STATE, N_STATE))
+    b = np.zeros(N_STATE)
+    x1 = np.zeros(N_STATE)
+    xm = np.zeros(N_STATE)
+    xt = np.zeros(N_STATE)
+    xmt = np.zeros(N_STATE)
+    force = np.zeros(N_STATE)
+    dgv = np.zeros(N_STATE)
+    amat = np.zeros((N_STATE, N_STATE))
     n_ev = ev_t.shape[0]
     k_ev = 0
     while k_ev < n_ev and ev_t[k_ev] <= 0.0:
@@ -537,7 +547,26 @@ def run_kernel(p0, x0, has_cap, h, n_steps, n_sub, duration, ev_t, ev_i, ev_v, r
         while k_ev < n_ev and ev_t[k_ev] <= t_end:
             te = ev_t[k_ev]
             if te > t:
-                status, t = advance(x, p, has_cap, te - t, h, t, cache, valid, acc, work, vec, amat)
+                status, t = advance(
+                    x,
+                    p,
+                    has_cap,
+                    te - t,
+                    h,
+                    t,
+                    cache,
+                    valid,
+                    acc,
+                    work,
+                    b,
+                    x1,
+                    xm,
+                    xt,
+                    xmt,
+                    force,
+                    dgv,
+                    amat,
+                )
                 if status != STATUS_OK:
                     break
                 t = te
@@ -548,7 +577,26 @@ def run_kernel(p0, x0, has_cap, h, n_steps, n_sub, duration, ev_t, ev_i, ev_v, r
         if status != STATUS_OK:
             break
         if t_end > t:
-            status, t = advance(x, p, has_cap, t_end - t, h, t, cache, valid, acc, work, vec, amat)
+            status, t = advance(
+                x,
+                p,
+                has_cap,
+                t_end - t,
+                h,
+                t,
+                cache,
+                valid,
+                acc,
+                work,
+                b,
+                x1,
+                xm,
+                xt,
+                xmt,
+                force,
+                dgv,
+                amat,
+            )
             if status != STATUS_OK:
                 break
         t = t_end

@@ -1,0 +1,176 @@
+"""Readable text form of a run summary, for the terminal.
+
+The summary itself is the plain dict of SI numbers in :attr:`SimulationResult.summary` (keys as
+in ``summary.json``); this module only lays it out. It also holds :data:`CAUTION`, the line that
+every report dcsim writes carries.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Mapping
+from typing import Any
+
+from dcsim.results.trace import ENERGY_KEYS
+
+CAUTION = (
+    "Caution: simulation is not a substitute for the component makers' data, local electrical "
+    "codes and licensed practice; verify on hardware with protection in place."
+)
+"""Plain caution carried by every report, plot and summary dcsim writes."""
+
+RAD_S_PER_RPM = 2.0 * math.pi / 60.0
+"""One revolution per minute in radians per second [rad/s per rpm]."""
+
+_SUPPLY_KEY = "energy_from_supply_J"
+_RESIDUAL_KEY = "energy_balance_residual_J"
+
+_ENERGY_LABELS = {
+    "energy_from_supply_J": "delivered by the source",
+    "energy_source_loss_J": "source + wiring resistance loss",
+    "energy_copper_loss_J": "armature copper loss",
+    "energy_friction_J": "friction (viscous + coulomb)",
+    "energy_to_load_J": "to the load",
+    "energy_shaft_lock_J": "absorbed by the shaft lock",
+    "kinetic_energy_change_J": "change of kinetic energy",
+    "stored_energy_change_J": "change of stored energy (L, C)",
+}
+
+
+def energy_terms(summary: Mapping[str, Any]) -> list[str]:
+    """Keys of the energy account found in a summary, supply first, in a stable order.
+
+    Parameters
+    ----------
+    summary : mapping
+        Run summary (SI numbers).
+
+    Returns
+    -------
+    list of str
+        ``energy_from_supply_J`` (if present), then the known terms of
+        :data:`~dcsim.results.trace.ENERGY_KEYS` that are present, then any further
+        ``energy_*_J`` keys (new losses) in sorted order. The residual key is never included.
+    """
+    known = [k for k in ENERGY_KEYS if k in summary]
+    extra = sorted(
+        k
+        for k in summary
+        if k.startswith("energy_")
+        and k.endswith("_J")
+        and k not in ENERGY_KEYS
+        and k != _RESIDUAL_KEY
+    )
+    return known + extra
+
+
+def energy_residual(summary: Mapping[str, Any]) -> float:
+    """Residual of the energy account [J].
+
+    Parameters
+    ----------
+    summary : mapping
+        Run summary (SI numbers) holding ``energy_from_supply_J`` and the other terms.
+
+    Returns
+    -------
+    float
+        ``energy_balance_residual_J`` when the summary carries it; otherwise the energy delivered
+        by the source minus the sum of every other term [J]. ``nan`` when the supply term is
+        missing.
+    """
+    if _RESIDUAL_KEY in summary:
+        return float(summary[_RESIDUAL_KEY])
+    if _SUPPLY_KEY not in summary:
+        return math.nan
+    spent = math.fsum(float(summary[k]) for k in energy_terms(summary) if k != _SUPPLY_KEY)
+    return float(summary[_SUPPLY_KEY]) - spent
+
+
+def _num(value: Any, unit: str = "", digits: int = 5) -> str:
+    """A number with ``digits`` significant figures and its unit, or ``n/a``."""
+    if value is None:
+        return "n/a"
+    try:
+        x = float(value)
+    except (TypeError, ValueError):
+        return str(value)
+    if math.isnan(x):
+        return "n/a"
+    text = f"{x:.{digits}g}"
+    return f"{text} {unit}" if unit else text
+
+
+def _time(value: Any) -> str:
+    """A time [s] shown in ms below one second."""
+    try:
+        x = float(value)
+    except (TypeError, ValueError):
+        return _num(value)
+    if math.isfinite(x) and abs(x) < 1.0:
+        return _num(x * 1e3, "ms")
+    return _num(x, "s")
+
+
+def format_summary(summary: Mapping[str, Any]) -> str:
+    """Lay a run summary out as a text table for the terminal.
+
+    Parameters
+    ----------
+    summary : mapping
+        Scalar results of a run keyed as in ``summary.json`` (SI numbers): ``peak_current_A``
+        [A], ``peak_current_time_s`` [s], ``i2t_A2s`` [A^2*s], ``final_speed_rad_s`` [rad/s],
+        ``min_bus_voltage_V`` / ``peak_bus_voltage_V`` [V] and the ``energy_*_J`` terms [J].
+        Missing entries are shown as ``n/a``.
+
+    Returns
+    -------
+    str
+        Several lines, without a trailing newline, ending with :data:`CAUTION`.
+
+    Notes
+    -----
+    The residual of the energy account is the summary's ``energy_balance_residual_J`` when
+    present, else the source energy minus the sum of every other term; it is also shown relative
+    to the source energy.
+    """
+    get = summary.get
+    width = 36
+    lines = ["Run summary"]
+
+    def row(label: str, text: str) -> None:
+        lines.append(f"  {label:<{width}}{text}")
+
+    peak = _num(get("peak_current_A"), "A")
+    if get("peak_current_time_s") is not None:
+        peak += f"  at {_time(get('peak_current_time_s'))}"
+    row("peak armature current", peak)
+    row("I²t of the armature current", _num(get("i2t_A2s"), "A²s"))
+
+    speed = get("final_speed_rad_s")
+    speed_text = _num(speed, "rad/s")
+    if speed is not None and math.isfinite(float(speed)):
+        speed_text += f"  ({_num(float(speed) / RAD_S_PER_RPM, 'rpm')})"
+    row("final speed", speed_text)
+    row(
+        "bus voltage",
+        f"min {_num(get('min_bus_voltage_V'), 'V')}   max {_num(get('peak_bus_voltage_V'), 'V')}",
+    )
+
+    terms = energy_terms(summary)
+    if terms or _RESIDUAL_KEY in summary:
+        lines.append("")
+        lines.append(f"  {'Energy account':<{width}}[J]")
+        for key in terms:
+            label = _ENERGY_LABELS.get(key, key.removeprefix("energy_").removesuffix("_J"))
+            row(("" if key == _SUPPLY_KEY else "  ") + label, _num(get(key), digits=6))
+        residual = energy_residual(summary)
+        text = _num(residual, digits=3)
+        supply = get(_SUPPLY_KEY)
+        if supply is not None and float(supply) != 0.0 and math.isfinite(residual):
+            text += f"  ({_num(100.0 * residual / float(supply), '%', digits=2)} of the source)"
+        row("residual (source - all terms)", text)
+
+    lines.append("")
+    lines.append(CAUTION)
+    return "\n".join(lines)

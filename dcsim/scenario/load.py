@@ -1,0 +1,792 @@
+"""Read scenario files (TOML) into validated, immutable :class:`Scenario` objects.
+
+This is the edge of dcsim: unit strings are converted to SI floats here and nowhere else, and
+every problem a file can have becomes one :class:`~dcsim.errors.ScenarioError` naming the file,
+the key (dotted, e.g. ``motor.inductance`` or ``events[2].set.load.torque``), what was expected
+and what was found. The loader raises no other exception for any input.
+
+Loading runs in two stages:
+
+1. *reading* walks the TOML document in file order, rejects unknown tables and keys (with the
+   closest valid name from :mod:`difflib`), and converts each value with its
+   :class:`~dcsim.scenario.schema.KeySpec` (type, dimension, finiteness, sign);
+2. *assembling* fills defaults, checks required tables and keys, the rules that tie keys
+   together, and the events against the run; then it builds the frozen dataclasses.
+
+:func:`apply_changes` (behind :meth:`Scenario.with_changes`) reuses both: it converts the
+changed values like a file's, then re-assembles and so re-validates the whole scenario.
+
+Events are numbered from 0 in file order: ``events[2]`` is the third ``[[events]]`` table.
+"""
+
+from __future__ import annotations
+
+import difflib
+import os
+import re
+import sys
+from collections.abc import Callable, Iterator, Mapping
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+if sys.version_info >= (3, 11):
+    import tomllib
+else:  # pragma: no cover - Python 3.10
+    import tomli as tomllib
+
+from dcsim.errors import ScenarioError
+from dcsim.scenario.schema import (
+    KEYS,
+    REQUIRED,
+    REQUIRED_TABLES,
+    About,
+    Control,
+    Event,
+    KeySpec,
+    Load,
+    Motor,
+    Scenario,
+    Simulation,
+    Supply,
+    changeable_keys,
+)
+from dcsim.units import UnitError, describe_value, to_si
+
+__all__ = ["apply_changes", "load_scenario", "load_scenario_text"]
+
+_TABLE_TYPES: dict[str, type] = {
+    "simulation": Simulation,
+    "motor": Motor,
+    "load": Load,
+    "supply": Supply,
+    "control": Control,
+    "about": About,
+}
+"""Dataclass of each table; its fields are the table's keys in :data:`KEYS`."""
+
+_EVENTS = "events"
+_EVENT_FIELDS = ("at", "set")
+
+_PLANNED_KEYS: dict[str, str] = {
+    "fuse": "the supply fuse",
+    "control.current": "the current loop",
+    "control.speed": "the speed loop",
+    "control.position": "the position loop",
+    "control.reference": "the loop reference",
+    "motor.field_resistance": "wound-field machines",
+    "motor.field_inductance": "wound-field machines",
+    "motor.mutual_inductance": "wound-field machines",
+    "motor.speed_constant": "catalogue motor data",
+}
+"""Names the contract announces that this version does not read yet (for clearer messages)."""
+
+_PLANNED_CHOICES: dict[str, tuple[str, ...]] = {
+    "control.mode": ("current", "speed", "position"),
+    "motor.kind": ("separately_excited", "shunt", "series", "compound"),
+}
+"""Choices the contract announces that this version does not accept yet."""
+
+
+def load_scenario(path: str | os.PathLike[str]) -> Scenario:
+    """Read and validate a scenario file.
+
+    Parameters
+    ----------
+    path : str or os.PathLike
+        A TOML scenario file (UTF-8).
+
+    Returns
+    -------
+    Scenario
+        Validated, SI values; ``source`` is ``str(path)``.
+
+    Raises
+    ------
+    ScenarioError
+        The file cannot be read, is not valid TOML, or any value is not acceptable.
+    """
+    try:
+        name = os.fsdecode(path)
+    except TypeError:
+        raise ScenarioError(
+            f"expected a scenario file path, found {describe_value(path)}"
+        ) from None
+    try:
+        data = Path(name).read_bytes()
+    except (OSError, ValueError) as err:
+        reason = getattr(err, "strerror", None) or str(err)
+        raise ScenarioError(
+            f"expected a readable scenario file, found that it cannot be read ({reason})",
+            source=name,
+        ) from None
+    try:
+        text = data.decode("utf-8")
+    except UnicodeDecodeError as err:
+        raise ScenarioError(
+            f"expected UTF-8 text (as TOML requires), found the byte {data[err.start]:#04x} "
+            f"at offset {err.start}, which is not UTF-8",
+            source=name,
+        ) from None
+    return load_scenario_text(text.removeprefix("\ufeff"), source=name)
+
+
+def load_scenario_text(text: str, source: str = "<text>") -> Scenario:
+    """Read and validate a scenario from TOML text.
+
+    Parameters
+    ----------
+    text : str
+        The TOML document.
+    source : str
+        Name used in messages and stored as ``Scenario.source``.
+
+    Returns
+    -------
+    Scenario
+        Validated, SI values.
+
+    Raises
+    ------
+    ScenarioError
+        The text is not valid TOML, or any value is not acceptable.
+    """
+    source = str(source)
+    if not isinstance(text, str):
+        raise ScenarioError(
+            f"expected the text of a TOML file (a str), found {describe_value(text)}",
+            source=source,
+        )
+    document = _parse_toml(text, source)
+    return _assemble(_read_document(document, source), source, result_source=source)
+
+
+def apply_changes(scenario: Scenario, changes: Mapping[str, Any]) -> Scenario:
+    """Return a new scenario with some keys changed, re-validated as a whole.
+
+    Parameters
+    ----------
+    scenario : Scenario
+        The scenario to start from; it is not modified.
+    changes : mapping
+        ``{"motor.inductance": "3 mH", "load.torque": 0.02, ...}``: dotted keys (or nested
+        tables, ``{"motor": {"inductance": "3 mH"}}``) with values as in a scenario file, i.e.
+        SI numbers or unit strings. ``None`` resets a key whose default is automatic
+        (``simulation.step``, ``simulation.record_interval``). Events are kept as they are
+        (and set their keys at their times, over the changed initial values); in messages,
+        ``events[i]`` counts ``scenario.events``, which are in time order.
+
+    Returns
+    -------
+    Scenario
+        A new scenario with the same ``source``.
+
+    Raises
+    ------
+    ScenarioError
+        Unknown key (with a suggestion), unacceptable value, or a scenario that is no longer
+        consistent (an event now outside the run, a bus capacitor without source resistance...).
+    """
+    if not isinstance(scenario, Scenario):
+        raise ScenarioError(f"expected a Scenario to change, found {describe_value(scenario)}")
+    source = f"changes to {scenario.source}"
+    if not isinstance(changes, Mapping):
+        raise ScenarioError(
+            "expected a mapping of dotted keys to values, e.g. {'motor.inductance': '3 mH'}, "
+            f"found {describe_value(changes)}",
+            source=source,
+        )
+    # The scenario's own values are checked again too: it may have been built in code.
+    read = _Read(tables=set(KEYS))
+    for name in _all_keys():
+        table, _, key = name.partition(".")
+        value = getattr(getattr(scenario, table), key)
+        read.values[name] = _convert(name, _spec(name), value, key=name, source=source)
+    read.events = [_recheck_event(i, ev, source) for i, ev in enumerate(scenario.events)]
+    changed: dict[str, Any] = {}
+    for name, value in _flatten(changes, where="", source=source):
+        spec = _spec(name)
+        if spec is None and name == _EVENTS:
+            raise ScenarioError(
+                "expected a dotted key such as 'motor.inductance', found 'events'; events "
+                "cannot be changed this way (write a scenario with the new [[events]])",
+                source=source,
+                key=name,
+            )
+        if spec is None:
+            raise _unknown_key(name, source=source, key=name)
+        changed[name] = _convert(name, spec, value, key=name, source=source)
+        read.shown[name] = describe_value(value)
+    read.values.update(changed)
+    # Keys count as written when changed now or when they differ from their default.
+    read.given = set(changed) | {
+        name for name, value in read.values.items() if value != _spec(name).default
+    }
+    return _assemble(read, source, result_source=scenario.source)
+
+
+def _recheck_event(index: int, event: Event, source: str) -> _ReadEvent:
+    """Check an :class:`Event` of an existing scenario the way a file's event is checked."""
+    where = f"{_EVENTS}[{index}]"
+    try:
+        at = to_si(event.at, "s", noun="a time", example="0.5 s")
+    except UnitError as err:
+        raise ScenarioError(err.detail, source=source, key=f"{where}.at") from None
+    changes = _read_event_changes(dict(event.changes), where=f"{where}.set", source=source)
+    return _ReadEvent(
+        index=index,
+        at=at,
+        at_shown=f"{at:g} s",
+        changes=tuple((name, value) for name, value, _ in changes),
+    )
+
+
+# --------------------------------------------------------------------------------------------
+# Stage 1: reading
+# --------------------------------------------------------------------------------------------
+
+
+@dataclass
+class _ReadEvent:
+    """One ``[[events]]`` table, converted to SI but not yet checked against the run."""
+
+    index: int
+    at: float
+    at_shown: str
+    changes: tuple[tuple[str, Any], ...]
+    shown: dict[str, str] = field(default_factory=dict)
+
+
+@dataclass
+class _Read:
+    """What stage 1 made of a document: SI values of the keys written, and how they looked."""
+
+    tables: set[str] = field(default_factory=set)
+    values: dict[str, Any] = field(default_factory=dict)
+    shown: dict[str, str] = field(default_factory=dict)
+    given: set[str] = field(default_factory=set)
+    events: list[_ReadEvent] = field(default_factory=list)
+
+
+def _parse_toml(text: str, source: str) -> dict[str, Any]:
+    """``tomllib.loads`` with its errors turned into messages that give the line."""
+    try:
+        return tomllib.loads(text)
+    except tomllib.TOMLDecodeError as err:
+        raise ScenarioError(_toml_message(str(err), text), source=source) from None
+    except RecursionError:
+        raise ScenarioError(
+            "malformed TOML: expected arrays and tables nested a few levels deep, found "
+            "nesting too deep to read",
+            source=source,
+        ) from None
+    except ValueError as err:  # e.g. an integer longer than Python converts (4300 digits)
+        raise ScenarioError(
+            f"malformed TOML: expected numbers of ordinary length, found one that cannot be "
+            f"read ({str(err).split(';')[0]})",
+            source=source,
+        ) from None
+
+
+def _toml_message(message: str, text: str) -> str:
+    """Rephrase a TOML decoding error as "malformed TOML at line N, column M: ..."."""
+    match = re.search(r"\s*\(at line (\d+), column (\d+)\)\s*$", message)
+    if match:
+        what = message[: match.start()]
+        line, column = int(match[1]), int(match[2])
+        lines = text.split("\n")
+        reads = ""
+        if 1 <= line <= len(lines):
+            reads = f"; the line reads {describe_value(lines[line - 1].strip())}"
+        return f"malformed TOML at line {line}, column {column}: {_lower_first(what)}{reads}"
+    match = re.search(r"\s*\(at end of document\)\s*$", message)
+    if match:
+        return f"malformed TOML at the end of the text: {_lower_first(message[: match.start()])}"
+    return f"malformed TOML: {_lower_first(message)}"
+
+
+def _lower_first(text: str) -> str:
+    return text[:1].lower() + text[1:]
+
+
+def _read_document(document: dict[str, Any], source: str) -> _Read:
+    """Stage 1: check names and convert values, in file order."""
+    read = _Read()
+    for table, body in document.items():
+        if table == _EVENTS:
+            read.events = _read_events(body, source)
+            continue
+        if table not in KEYS:
+            raise _unknown_top_level(table, body, source)
+        if not isinstance(body, dict):
+            raise ScenarioError(
+                f"expected a table [{table}], found {describe_value(body, with_kind=True)}",
+                source=source,
+                key=table,
+            )
+        read.tables.add(table)
+        for key, value in body.items():
+            name = f"{table}.{key}"
+            spec = KEYS[table].get(key)
+            if spec is None:
+                raise _unknown_key(name, source=source, key=name)
+            read.values[name] = _convert(name, spec, value, key=name, source=source)
+            read.shown[name] = describe_value(value)
+            read.given.add(name)
+    return read
+
+
+def _read_events(body: Any, source: str) -> list[_ReadEvent]:
+    """Convert the ``[[events]]`` array; times are checked against the run in stage 2."""
+    if not isinstance(body, list):
+        raise ScenarioError(
+            "expected an array of tables ([[events]] blocks with 'at' and 'set'), found "
+            f"{describe_value(body, with_kind=True)}",
+            source=source,
+            key=_EVENTS,
+        )
+    events = []
+    for index, raw in enumerate(body):
+        where = f"{_EVENTS}[{index}]"
+        if not isinstance(raw, dict):
+            raise ScenarioError(
+                "expected a table with 'at' and 'set' (an [[events]] block), found "
+                f"{describe_value(raw, with_kind=True)}",
+                source=source,
+                key=where,
+            )
+        for name in raw:
+            if name not in _EVENT_FIELDS:
+                close = difflib.get_close_matches(name, _EVENT_FIELDS, n=1, cutoff=0.5)
+                hint = f"; did you mean '{close[0]}'?" if close else ""
+                raise ScenarioError(
+                    f"unknown key '{where}.{name}'{hint} (an event has 'at' and 'set')",
+                    source=source,
+                    key=f"{where}.{name}",
+                )
+        if "at" not in raw:
+            raise ScenarioError(
+                "missing key: expected the time of the event, e.g. at = \"0.5 s\", found no 'at'",
+                source=source,
+                key=f"{where}.at",
+            )
+        try:
+            at = to_si(raw["at"], "s", noun="a time", example="0.5 s")
+        except UnitError as err:
+            raise ScenarioError(err.detail, source=source, key=f"{where}.at") from None
+        if "set" not in raw:
+            raise ScenarioError(
+                "missing key: expected the keys the event changes, e.g. "
+                'set = { "load.torque" = "0.02 N*m" }, found no \'set\'',
+                source=source,
+                key=f"{where}.set",
+            )
+        changes = _read_event_changes(raw["set"], where=f"{where}.set", source=source)
+        events.append(
+            _ReadEvent(
+                index=index,
+                at=at,
+                at_shown=describe_value(raw["at"]),
+                changes=tuple((name, value) for name, value, _ in changes),
+                shown={name: shown for name, _, shown in changes},
+            )
+        )
+    return events
+
+
+def _read_event_changes(body: Any, *, where: str, source: str) -> list[tuple[str, Any, str]]:
+    """``(dotted key, SI value, as written)`` for each change of one event."""
+    if not isinstance(body, dict):
+        raise ScenarioError(
+            'expected a table of changes, e.g. set = { "load.torque" = "0.02 N*m" }, '
+            f"found {describe_value(body, with_kind=True)}",
+            source=source,
+            key=where,
+        )
+    changes = []
+    for name, value in _flatten(body, where=f"{where}.", source=source):
+        key = f"{where}.{name}"
+        spec = _spec(name)
+        if spec is None:
+            raise _unknown_key(name, source=source, key=key, candidates=changeable_keys())
+        if not spec.changeable:
+            raise ScenarioError(
+                f"expected a key an event may change ({', '.join(changeable_keys())}), found "
+                f"'{name}', which is fixed for the whole run",
+                source=source,
+                key=key,
+            )
+        converted = _convert(name, spec, value, key=key, source=source)
+        changes.append((name, converted, describe_value(value)))
+    if not changes:
+        raise ScenarioError(
+            'expected at least one change, e.g. set = { "load.torque" = "0.02 N*m" }, '
+            "found an empty table",
+            source=source,
+            key=where,
+        )
+    return changes
+
+
+def _flatten(body: Mapping[Any, Any], *, where: str, source: str) -> Iterator[tuple[str, Any]]:
+    """Yield ``(dotted key, value)`` from ``{"load.torque": v}`` or ``{"load": {"torque": v}}``.
+
+    Only a table name is descended into, so the result is at most ``table.key`` deep.
+    """
+    seen: set[str] = set()
+    for first, value in body.items():
+        if not isinstance(first, str):
+            raise ScenarioError(
+                f"expected a dotted key such as 'motor.inductance', found "
+                f"{describe_value(first, with_kind=True)}",
+                source=source,
+                key=where.rstrip("."),
+            )
+        if first in KEYS and isinstance(value, Mapping):
+            pairs = [(f"{first}.{k}", v) for k, v in value.items()]
+        else:
+            pairs = [(first, value)]
+        for name, item in pairs:
+            if name in seen:
+                raise ScenarioError(
+                    f"expected each key once, found '{name}' twice",
+                    source=source,
+                    key=f"{where}{name}",
+                )
+            seen.add(name)
+            yield name, item
+
+
+def _convert(name: str, spec: KeySpec, value: Any, *, key: str, source: str) -> Any:
+    """Check the value of key ``name`` against its spec; return it in SI (or bool / str).
+
+    ``key`` is how messages name the place (``events[1].set.load.torque``).
+    """
+    if spec.kind == "quantity":
+        if value is None and spec.default is None:
+            return None  # only reachable from Python: "let dcsim choose"
+        try:
+            si = to_si(value, spec.unit, noun=spec.noun, example=spec.example)
+        except UnitError as err:
+            raise ScenarioError(err.detail, source=source, key=key) from None
+        return _check_sign(spec, si, value, key=key, source=source)
+    if spec.kind == "bool":
+        if isinstance(value, bool):
+            return value
+        raise ScenarioError(
+            f"expected true or false (e.g. {key.rpartition('.')[2]} = {spec.example}), found "
+            f"{describe_value(value, with_kind=True)}",
+            source=source,
+            key=key,
+        )
+    if spec.kind == "choice":
+        accepted = ", ".join(f"'{c}'" for c in spec.choices)
+        if not isinstance(value, str):
+            raise ScenarioError(
+                f"expected {spec.noun}, one of {accepted}, found "
+                f"{describe_value(value, with_kind=True)}",
+                source=source,
+                key=key,
+            )
+        if value in spec.choices:
+            return value
+        if value in _PLANNED_CHOICES.get(name, ()):
+            raise ScenarioError(
+                f"expected {spec.noun}, one of {accepted}, found {describe_value(value)}, which "
+                "is not available yet in this version of dcsim",
+                source=source,
+                key=key,
+            )
+        close = difflib.get_close_matches(value, spec.choices, n=1)
+        hint = f"; did you mean '{close[0]}'?" if close else ""
+        raise ScenarioError(
+            f"expected {spec.noun}, one of {accepted}, found {describe_value(value)}{hint}",
+            source=source,
+            key=key,
+        )
+    if spec.kind == "text":
+        if isinstance(value, str):
+            return value
+        raise ScenarioError(
+            f"expected {spec.noun} (a string, e.g. {spec.example}), found "
+            f"{describe_value(value, with_kind=True)}",
+            source=source,
+            key=key,
+        )
+    raise TypeError(f"schema error: key {key!r} has unknown kind {spec.kind!r}")
+
+
+def _check_sign(spec: KeySpec, si: float, value: Any, *, key: str, source: str) -> float:
+    """Apply the spec's constraint (``positive``, ``nonnegative`` or ``any``) [SI]."""
+    found = describe_value(value)
+    if isinstance(value, str):
+        found += f" = {si:g} {spec.unit}"
+    if spec.constraint == "positive" and not si > 0:
+        raise ScenarioError(
+            f"expected {spec.noun} greater than 0 (e.g. '{spec.example}'), found {found}",
+            source=source,
+            key=key,
+        )
+    if spec.constraint == "nonnegative" and si < 0:
+        raise ScenarioError(
+            f"expected {spec.noun} of 0 or more (e.g. '{spec.example}'), found {found}",
+            source=source,
+            key=key,
+        )
+    return si + 0.0  # a written "-0" is stored as 0.0
+
+
+# --------------------------------------------------------------------------------------------
+# Names and suggestions
+# --------------------------------------------------------------------------------------------
+
+
+def _all_keys() -> list[str]:
+    return [f"{table}.{key}" for table, keys in KEYS.items() for key in keys]
+
+
+def _spec(name: str) -> KeySpec | None:
+    table, _, key = name.partition(".")
+    return KEYS.get(table, {}).get(key)
+
+
+def _unknown_top_level(name: str, body: Any, source: str) -> ScenarioError:
+    """Message for a top-level name that is neither a table nor ``events``."""
+    if name in _PLANNED_KEYS:
+        return ScenarioError(
+            f"unknown table [{name}] ({_PLANNED_KEYS[name]}): not available yet in this version "
+            "of dcsim",
+            source=source,
+            key=name,
+        )
+    if _spec(name) is not None:
+        table, _, key = name.partition(".")
+        return ScenarioError(
+            f"unknown key '{name}' at the top level; write {key} inside [{table}], or "
+            f"{name} without quotes",
+            source=source,
+            key=name,
+        )
+    as_key = [f"{t}.{name}" for t, keys in KEYS.items() if name in keys]
+    if as_key:
+        return ScenarioError(
+            f"unknown key '{name}' at the top level; did you mean '{as_key[0]}' (key {name} "
+            f"inside [{as_key[0].partition('.')[0]}])?",
+            source=source,
+            key=name,
+        )
+    names = [*KEYS, _EVENTS]
+    close = difflib.get_close_matches(name, names, n=1)
+    if isinstance(body, dict) or close:
+        what = "table" if isinstance(body, dict) else "key"
+        hint = f"did you mean '{close[0]}'?" if close else "the tables are " + ", ".join(names)
+        return ScenarioError(f"unknown {what} '{name}'; {hint}", source=source, key=name)
+    return ScenarioError(
+        f"unknown key '{name}' at the top level; the top level holds only the tables "
+        f"{', '.join(KEYS)} and [[events]]",
+        source=source,
+        key=name,
+    )
+
+
+def _unknown_key(
+    name: str, *, source: str, key: str, candidates: list[str] | None = None
+) -> ScenarioError:
+    """Message for an unknown dotted key, with the closest valid one if there is one."""
+    if name in _PLANNED_KEYS:
+        return ScenarioError(
+            f"unknown key '{name}' ({_PLANNED_KEYS[name]}): not available yet in this version "
+            "of dcsim",
+            source=source,
+            key=key,
+        )
+    restricted = candidates is not None  # e.g. the keys events may change: list them all
+    candidates = candidates if candidates is not None else _all_keys()
+    table, _, short = name.partition(".")
+    same_table = [c for c in candidates if c.partition(".")[0] == table]
+    others = [c for c in candidates if c not in same_table]
+    if table in KEYS:
+        # A misspelt key of this table, else the same key written in the wrong table.
+        by_short = {c.partition(".")[2]: c for c in reversed(others)}
+        by_short.update({c.partition(".")[2]: c for c in same_table})
+        close = difflib.get_close_matches(short, [c.partition(".")[2] for c in same_table])
+        close = close or difflib.get_close_matches(short, list(by_short), cutoff=0.8)
+        suggestion = by_short[close[0]] if close else ""
+    else:  # a misspelt table name: compare whole dotted names
+        close = difflib.get_close_matches(name, candidates, n=1)
+        suggestion = close[0] if close else ""
+    if suggestion:
+        return ScenarioError(
+            f"unknown key '{name}'; did you mean '{suggestion}'?", source=source, key=key
+        )
+    listed = candidates if restricted or not same_table else same_table
+    return ScenarioError(
+        f"unknown key '{name}'; expected one of {', '.join(listed)}",
+        source=source,
+        key=key,
+    )
+
+
+# --------------------------------------------------------------------------------------------
+# Stage 2: assembling
+# --------------------------------------------------------------------------------------------
+
+_Show = Callable[[str], str]
+_Problem = tuple[str, str] | None  # (dotted key, message) of a broken rule
+_Rule = Callable[[dict[str, Any], set[str], _Show], _Problem]
+
+
+def _rule_bus_needs_resistance(state: dict[str, Any], given: set[str], show: _Show) -> _Problem:
+    """A bus capacitor is charged by the source through the source resistance."""
+    if state["supply.capacitance"] > 0 and not state["supply.resistance"] > 0:
+        return (
+            "supply.resistance",
+            "expected a resistance greater than 0 when supply.capacitance is "
+            f"{show('supply.capacitance')} (the source charges the bus capacitor through it), "
+            f"found {show('supply.resistance')}",
+        )
+    return None
+
+
+def _rule_intervals_within_run(state: dict[str, Any], given: set[str], show: _Show) -> _Problem:
+    """Recording interval and plant step cannot be longer than the run."""
+    for name in ("simulation.record_interval", "simulation.step"):
+        value = state[name]
+        if value is not None and value > state["simulation.duration"]:
+            return (
+                name,
+                f"expected a time no longer than simulation.duration "
+                f"({show('simulation.duration')}), found {show(name)}",
+            )
+    return None
+
+
+def _rule_voltage_only_open_loop(state: dict[str, Any], given: set[str], show: _Show) -> _Problem:
+    """``control.voltage`` is the open-loop command; closed loops set the voltage themselves."""
+    mode = state["control.mode"]
+    if mode != "voltage" and "control.voltage" in given:
+        return (
+            "control.voltage",
+            f"expected no control.voltage in control mode '{mode}' (it is used only in mode "
+            f"'voltage'; the loops set the armature voltage), found {show('control.voltage')}",
+        )
+    return None
+
+
+_RULES: tuple[_Rule, ...] = (
+    _rule_intervals_within_run,
+    _rule_bus_needs_resistance,
+    _rule_voltage_only_open_loop,
+)
+"""Rules tying keys together, checked on the initial values and after each event time."""
+
+
+def _assemble(read: _Read, source: str, *, result_source: str) -> Scenario:
+    """Stage 2: defaults, required keys, rules, events; then the frozen scenario."""
+    values = dict(read.values)
+    for table in REQUIRED_TABLES:
+        if table not in read.tables:
+            raise _missing_table(table, source)
+    for table, specs in KEYS.items():
+        for key, spec in specs.items():
+            name = f"{table}.{key}"
+            if name in values:
+                continue
+            if spec.default is REQUIRED:
+                if table not in read.tables:
+                    raise _missing_table(table, source)
+                raise ScenarioError(
+                    f'missing key: expected {spec.noun}, e.g. {key} = "{spec.example}" in '
+                    f"[{table}], found no {key}",
+                    source=source,
+                    key=name,
+                )
+            values[name] = spec.default
+
+    def show(name: str) -> str:
+        if name in read.shown:
+            return read.shown[name]
+        return _show_si(name, values[name], given=name in read.given)
+
+    problem = _first_problem(values, read.given, show)
+    if problem is not None:
+        raise ScenarioError(problem[1], source=source, key=problem[0])
+
+    duration = values["simulation.duration"]
+    for event in read.events:
+        if not 0 <= event.at <= duration:
+            raise ScenarioError(
+                f"event outside the run: expected a time from 0 s to simulation.duration "
+                f"({show('simulation.duration')}), found {event.at_shown}",
+                source=source,
+                key=f"{_EVENTS}[{event.index}].at",
+            )
+    ordered = sorted(read.events, key=lambda e: e.at)  # stable: file order at equal times
+    _check_events(values, ordered, source)
+
+    tables = {
+        table: cls(**{key: values[f"{table}.{key}"] for key in KEYS[table]})
+        for table, cls in _TABLE_TYPES.items()
+    }
+    return Scenario(
+        **tables,
+        events=tuple(Event(at=e.at, changes=e.changes) for e in ordered),
+        source=result_source,
+    )
+
+
+def _check_events(values: dict[str, Any], ordered: list[_ReadEvent], source: str) -> None:
+    """Apply the events in time order and check the rules after each distinct time."""
+    state = dict(values)
+    i = 0
+    while i < len(ordered):
+        group = [e for e in ordered[i:] if e.at == ordered[i].at]
+        i += len(group)
+        written: dict[str, _ReadEvent] = {}
+        for event in group:
+            for name, value in event.changes:
+                state[name] = value
+                written[name] = event
+
+        def show(name: str, written: dict[str, _ReadEvent] = written) -> str:
+            event = written.get(name)
+            if event is not None and name in event.shown:
+                return f"{event.shown[name]} (set at {event.at_shown})"
+            return _show_si(name, state[name], given=True)
+
+        problem = _first_problem(state, set(written), show)
+        if problem is not None:
+            name, detail = problem
+            event = written.get(name)
+            key = f"{_EVENTS}[{event.index}].set.{name}" if event else name
+            raise ScenarioError(detail, source=source, key=key)
+
+
+def _first_problem(state: dict[str, Any], given: set[str], show: _Show) -> _Problem:
+    for rule in _RULES:
+        problem = rule(state, given, show)
+        if problem is not None:
+            return problem
+    return None
+
+
+def _show_si(name: str, value: Any, *, given: bool) -> str:
+    """An SI value for messages, e.g. ``"0 ohm (the default)"``."""
+    spec = _spec(name)
+    if value is None:
+        text = "automatic"
+    elif isinstance(value, bool | str):
+        text = describe_value(value)
+    else:
+        text = f"{value:g} {spec.unit}"
+    return text if given else f"{text} (the default)"
+
+
+def _missing_table(table: str, source: str) -> ScenarioError:
+    needed = [k for k, spec in KEYS[table].items() if spec.default is REQUIRED]
+    keys = f" with {', '.join(needed)}" if needed else ""
+    return ScenarioError(
+        f"missing table: expected a [{table}] table{keys}, found none",
+        source=source,
+        key=table,
+    )
