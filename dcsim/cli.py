@@ -108,6 +108,16 @@ class _Progress:
             self.stream.flush()
         return self
 
+    def update(self, fraction: float) -> None:
+        """Show the fraction of simulated time done (terminal only)."""
+        if self.live and fraction < 1.0:
+            elapsed = time.perf_counter() - self.start
+            _write(
+                self.stream,
+                f"\rsimulating {self.label} ... {100 * fraction:3.0f} %  ({elapsed:.0f} s)",
+            )
+            self.stream.flush()
+
     def __exit__(
         self,
         exc_type: type[BaseException] | None,
@@ -155,8 +165,8 @@ def _run_and_write(given: str, label: str, out_dir: Path) -> int:
     from dcsim.results.io import write_outputs
     from dcsim.results.summary import format_summary
 
-    with _Progress(sys.stderr, label):
-        result = simulate(scenario)
+    with _Progress(sys.stderr, label) as progress:
+        result = simulate(scenario, progress=progress.update)
     files = write_outputs(result, out_dir)
 
     lines = [format_summary(result.summary), "", f"files written to {_shown(out_dir)}:"]

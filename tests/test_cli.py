@@ -106,7 +106,7 @@ def fake_modules(monkeypatch):
             raise knobs.load_error
         return hand_scenario(str(path))
 
-    def simulate(scenario):
+    def simulate(scenario, progress=None):
         if knobs.sim_error is not None:
             raise knobs.sim_error
         return hand_result(scenario)

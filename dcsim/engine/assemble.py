@@ -32,7 +32,9 @@ PARAM_OF_KEY: dict[str, int] = {
 STEPS_PER_TIME_CONSTANT = 10
 """Default step = fastest time constant / this. The linear part is exact at any step; the
 step only has to resolve the quadrature of the summary integrals (Simpson's rule: relative
-error about (h/tau)^4 / 180 on an exponential, ~6e-7 here) and the ETD2 bus term."""
+error about (h/tau)^4 / 180 on an exponential, ~6e-7 here) and of the third-order
+correction of the bus term."""
+
 
 DEFAULT_ROWS = 10_000
 MAX_STEPS = 500_000_000

@@ -1,8 +1,9 @@
 """Matrix exponential and phi-functions, compiled for the kernel.
 
 The kernel advances the linear part of the drive equations exactly over a step ``h``:
-``x(t+h) = e^{hA} x + h phi1(hA) b``; the ETD2 correction of the non-linear bus term uses
-``h phi2(hA)``. All three come from one exponential of an augmented block matrix.
+``x(t+h) = e^{hA} x + h phi1(hA) b``; the polynomial correction of the non-linear bus term
+uses ``h phi2(hA)`` and ``h phi3(hA)``. All four come from one exponential of an augmented
+block matrix.
 
 References
 ----------
@@ -12,7 +13,9 @@ References
 .. [2] N. J. Higham, *Functions of Matrices*, SIAM (2008), sec. 10.7.4 and eq. (10.40):
    the phi-functions as blocks of the exponential of an augmented matrix.
 .. [3] S. M. Cox and P. C. Matthews, "Exponential time differencing for stiff systems",
-   J. Comput. Phys. 176 (2002) 430-455, doi:10.1006/jcph.2002.6995 -- ETD2RK scheme.
+   J. Comput. Phys. 176 (2002) 430-455, doi:10.1006/jcph.2002.6995 -- ETD schemes.
+.. [4] M. Hochbruck and A. Ostermann, "Exponential integrators", Acta Numerica 19 (2010)
+   209-286, doi:10.1017/S0962492910000048.
 """
 
 from __future__ import annotations
@@ -70,7 +73,12 @@ def expm(a: np.ndarray) -> np.ndarray:
 
 @njit(cache=True)
 def phi_blocks(a: np.ndarray, h: float):
-    """Exact-step propagators of ``x' = A x + b`` over a step ``h`` (Higham [2]_).
+    """Exact-step propagators of ``x' = A x + b + g(t)`` over a step ``h`` (Higham [2]_).
+
+    With ``g`` a polynomial in time, ``g(t) = g0 + c1 t + c2 t^2``, the exact solution is
+    ``x(h) = e^{hA} x + h phi1(hA) (b + g0) + h^2 phi2(hA) c1 + 2 h^3 phi3(hA) c2``
+    (the variation-of-constants formula with ``int_0^h e^{(h-s)A} s^k ds = k! h^{k+1}
+    phi_{k+1}(hA)``, Hochbruck & Ostermann 2010, eq. 2.9).
 
     Parameters
     ----------
@@ -83,20 +91,21 @@ def phi_blocks(a: np.ndarray, h: float):
     -------
     e : (n, n) float array
         ``exp(hA)``.
-    f1 : (n, n) float array
-        ``h phi1(hA) = A^-1 (exp(hA) - I)`` [s] (computed without inverting ``A``).
-    f2 : (n, n) float array
-        ``h phi2(hA)`` [s], weight of a forcing that grows linearly over the step.
+    f1, f2, f3 : (n, n) float arrays
+        ``h phi1(hA)``, ``h phi2(hA)``, ``h phi3(hA)`` [s]; ``f1 = A^-1 (exp(hA) - I)``
+        computed without inverting ``A``.
     """
     n = a.shape[0]
-    m = np.zeros((3 * n, 3 * n))
+    m = np.zeros((4 * n, 4 * n))
     for i in range(n):
         for j in range(n):
             m[i, j] = h * a[i, j]
         m[i, n + i] = 1.0
         m[n + i, 2 * n + i] = 1.0
+        m[2 * n + i, 3 * n + i] = 1.0
     big = expm(m)
     e = np.ascontiguousarray(big[:n, :n])
     f1 = np.ascontiguousarray(big[:n, n : 2 * n]) * h
-    f2 = np.ascontiguousarray(big[:n, 2 * n :]) * h
-    return e, f1, f2
+    f2 = np.ascontiguousarray(big[:n, 2 * n : 3 * n]) * h
+    f3 = np.ascontiguousarray(big[:n, 3 * n :]) * h
+    return e, f1, f2, f3

@@ -52,7 +52,6 @@ from dcsim.engine.layout import (
     A_SOURCE_LOSS,
     A_SPLITS,
     A_SUPPLY,
-    N_REC,
     N_STATE,
     P_B,
     P_C,
@@ -187,7 +186,7 @@ def system_matrix(r, p, has_cap, a):
     fill_shaft_rows(a, np.zeros(N_STATE), p[P_K], p[P_J], p[P_B], 0.0, stuck)
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True)
 def forcing(r, fsign, p, has_cap, b, dummy):
     """Fill the constant forcing ``b_r`` of the step (``dummy``: a scratch matrix)."""
     b[:] = 0.0
@@ -254,14 +253,20 @@ def _matvec_add(cache, slot, which, v, out, scale):
         out[i] += scale * s
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True)
 def propagate(x, b, cache, slot, nl_coef, x1, xm, force, dg_vec):
-    """Advance one (sub-)step exactly for the linear part, ETD2RK for the bus term.
+    """Advance one (sub-)step: exact for the linear part, a polynomial correction for the
+    bus term.
 
-    ``cache[slot]`` holds the propagators ``e, f1, f2`` of the step and ``eh, f1h, f2h`` of
-    its half (see :func:`store_propagators`). ``nl_coef`` is ``-v_cmd / C``: the bus row gets
-    ``nl_coef * i / v``. Writes the end state into ``x1`` and the mid-step state into ``xm``;
-    ``force`` and ``dg_vec`` are scratch.
+    ``cache[slot]`` holds ``e, f1, f2`` of the step, ``eh, f1h, f2h`` of its half and
+    ``f3, f3h`` (see :func:`store_propagators`). ``nl_coef`` is ``-v_cmd / C``: with the
+    bridge in control across a capacitor the bus row gets ``g = nl_coef * i / v``.
+
+    For that term the step is predicted with ``g`` linear in time (ETD2RK, Cox & Matthews
+    2002), then corrected once with ``g`` quadratic through its values at the start, middle and
+    end of the step, integrated exactly against the exponential (:func:`phi_blocks`). Writes
+    the end state into ``x1`` and the mid-step state into ``xm``; ``force`` and ``dg_vec``
+    are scratch.
     """
     for k in range(N_STATE):
         force[k] = b[k]
@@ -276,12 +281,30 @@ def propagate(x, b, cache, slot, nl_coef, x1, xm, force, dg_vec):
     _matvec_add(cache, slot, 3, x, xm, 1.0)
     _matvec_add(cache, slot, 4, force, xm, 1.0)
     if nl_coef != 0.0:
-        ga = nl_coef * x1[X_CURRENT] / max(x1[X_BUS], 1e-12)
+        # the linear-part solution (kept in force) is shared by predictor and corrector
         for k in range(N_STATE):
-            dg_vec[k] = 0.0
-        dg_vec[X_BUS] = ga - g0
-        _matvec_add(cache, slot, 2, dg_vec, x1, 1.0)
-        _matvec_add(cache, slot, 5, dg_vec, xm, 0.5)
+            force[k] = x1[k]
+            dg_vec[k] = xm[k]
+        # predictor: g linear from g0 to g(x1)
+        ga = nl_coef * x1[X_CURRENT] / max(x1[X_BUS], 1e-12)
+        d = ga - g0
+        for k in range(N_STATE):
+            x1[k] += cache[slot, 2, k, X_BUS] * d
+            xm[k] += 0.5 * cache[slot, 5, k, X_BUS] * d
+        # corrector: g quadratic through g0, g(xm), g(x1)
+        gm = nl_coef * xm[X_CURRENT] / max(xm[X_BUS], 1e-12)
+        g1 = nl_coef * x1[X_CURRENT] / max(x1[X_BUS], 1e-12)
+        c1h = 4.0 * gm - 3.0 * g0 - g1  # h * c1
+        c2h2 = 2.0 * (g1 - 2.0 * gm + g0)  # h^2 * c2
+        for k in range(N_STATE):
+            x1[k] = (
+                force[k] + cache[slot, 2, k, X_BUS] * c1h + 2.0 * cache[slot, 6, k, X_BUS] * c2h2
+            )
+            xm[k] = (
+                dg_vec[k]
+                + 0.5 * cache[slot, 5, k, X_BUS] * c1h
+                + 0.5 * cache[slot, 7, k, X_BUS] * c2h2
+            )
 
 
 @njit(cache=True, inline="always")
@@ -300,12 +323,20 @@ def powers(x, p, has_cap, r, fsign, work, row):
     work[row, 6] = vb
 
 
-@njit(cache=True, inline="always")
-def accumulate(x0, xm, x1, hh, t0, p, has_cap, r, fsign, acc, work):
-    """Add Simpson's-rule integrals over a (sub-)step and update peaks."""
+@njit(cache=True)
+def accumulate(x0, xm, x1, hh, t0, p, has_cap, r, fsign, acc, work, reuse_start):
+    """Add Simpson's-rule integrals over a (sub-)step and update peaks.
+
+    With ``reuse_start`` the integrands at ``x0`` are the previous step's end values, still
+    in ``work[2]`` (same regime, no event between).
+    """
     w0 = hh / 6.0
     wm = 4.0 * hh / 6.0
-    powers(x0, p, has_cap, r, fsign, work, 0)
+    if reuse_start:
+        for k in range(7):
+            work[0, k] = work[2, k]
+    else:
+        powers(x0, p, has_cap, r, fsign, work, 0)
     powers(xm, p, has_cap, r, fsign, work, 1)
     powers(x1, p, has_cap, r, fsign, work, 2)
     acc[A_I2T] += w0 * (work[0, 0] + work[2, 0]) + wm * work[1, 0]
@@ -332,19 +363,72 @@ def _peaks(x, t, bus_V, acc):
 def store_propagators(r, p, has_cap, hh, a, cache, slot):
     """Build ``A_r`` and store the propagators of steps ``hh`` and ``hh/2`` in ``cache[slot]``."""
     system_matrix(r, p, has_cap, a)
-    e, f1, f2 = phi_blocks(a, hh)
-    eh, f1h, f2h = phi_blocks(a, 0.5 * hh)
+    e, f1, f2, f3 = phi_blocks(a, hh)
+    eh, f1h, f2h, f3h = phi_blocks(a, 0.5 * hh)
     cache[slot, 0] = e
     cache[slot, 1] = f1
     cache[slot, 2] = f2
     cache[slot, 3] = eh
     cache[slot, 4] = f1h
     cache[slot, 5] = f2h
+    cache[slot, 6] = f3
+    cache[slot, 7] = f3h
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True)
+def locate_crossing(
+    x, p, has_cap, r, fsign, step, h_nom, gm, g1, b, nl, cache, a, x1, xm, xt, xmt, force, dgv
+):
+    """Find where the guard of regime ``r`` first changes sign inside a step (Illinois).
+
+    Returns the length of the sub-step that ends just past the crossing [s] and leaves the
+    state there in ``x1`` (mid-sub-step state in ``xm``). Kept out of line: it runs only at
+    regime changes.
+    """
+    scratch = N_REGIME
+    g0 = guard(x, p, has_cap, r, fsign)
+    lo = 0.0
+    glo = g0
+    if gm < 0.0:
+        hi = 0.5
+        ghi = gm
+    else:
+        hi = 1.0
+        ghi = g1
+    side = 0
+    for _ in range(60):
+        if (hi - lo) * step <= 1e-12 * h_nom:
+            break
+        if glo != ghi:
+            s = hi - ghi * (hi - lo) / (ghi - glo)
+        else:
+            s = 0.5 * (lo + hi)
+        if not (lo < s < hi):
+            s = 0.5 * (lo + hi)
+        store_propagators(r, p, has_cap, s * step, a, cache, scratch)
+        propagate(x, b, cache, scratch, nl, xt, xmt, force, dgv)
+        gs = guard(xt, p, has_cap, r, fsign)
+        if gs < 0.0:
+            hi = s
+            ghi = gs
+            if side == -1:
+                glo *= 0.5
+            side = -1
+        else:
+            lo = s
+            glo = gs
+            if side == 1:
+                ghi *= 0.5
+            side = 1
+    sub = hi * step
+    store_propagators(r, p, has_cap, sub, a, cache, scratch)
+    propagate(x, b, cache, scratch, nl, x1, xm, force, dgv)
+    return sub
+
+
+@njit(cache=True)
 def advance(
-    x, p, has_cap, hh, h_nom, t0, cache, valid, acc, work, b, x1, xm, xt, xmt, force, dgv, a
+    x, p, has_cap, hh, h_nom, t0, cache, valid, acc, work, carry, b, x1, xm, xt, xmt, force, dgv, a
 ):
     """Advance ``x`` by ``hh`` seconds, locating regime changes; returns (status, time).
 
@@ -381,50 +465,41 @@ def advance(
         if has_cap and (r // 2) % 3 == BRIDGE_CONTROL:
             nl = -p[P_VCMD] / p[P_C]
         propagate(x, b, cache, slot, nl, x1, xm, force, dgv)
-        g0 = guard(x, p, has_cap, r, fsign)
         gm = guard(xm, p, has_cap, r, fsign)
         g1 = guard(x1, p, has_cap, r, fsign)
-        if g0 >= 0.0 and (gm < 0.0 or g1 < 0.0) and splits < 64:
-            lo = 0.0
-            glo = g0
-            if gm < 0.0:
-                hi = 0.5
-                ghi = gm
-            else:
-                hi = 1.0
-                ghi = g1
-            side = 0
-            for _ in range(60):
-                if (hi - lo) * step <= 1e-12 * h_nom:
-                    break
-                if glo != ghi:
-                    s = hi - ghi * (hi - lo) / (ghi - glo)
-                else:
-                    s = 0.5 * (lo + hi)
-                if not (lo < s < hi):
-                    s = 0.5 * (lo + hi)
-                store_propagators(r, p, has_cap, s * step, a, cache, scratch)
-                propagate(x, b, cache, scratch, nl, xt, xmt, force, dgv)
-                gs = guard(xt, p, has_cap, r, fsign)
-                if gs < 0.0:
-                    hi = s
-                    ghi = gs
-                    if side == -1:
-                        glo *= 0.5
-                    side = -1
-                else:
-                    lo = s
-                    glo = gs
-                    if side == 1:
-                        ghi *= 0.5
-                    side = 1
-            sub = hi * step
-            store_propagators(r, p, has_cap, sub, a, cache, scratch)
-            propagate(x, b, cache, scratch, nl, x1, xm, force, dgv)
+        crossed = gm < 0.0 or g1 < 0.0
+        if crossed:
+            # g0 < 0 means the regime test and its guard disagree at x (rounding at the
+            # boundary): take the step whole rather than split at its start forever
+            crossed = guard(x, p, has_cap, r, fsign) >= 0.0 and splits < 64
+        if crossed:
+            sub = locate_crossing(
+                x,
+                p,
+                has_cap,
+                r,
+                fsign,
+                step,
+                h_nom,
+                gm,
+                g1,
+                b,
+                nl,
+                cache,
+                a,
+                x1,
+                xm,
+                xt,
+                xmt,
+                force,
+                dgv,
+            )
             if fsign != 0.0 and (r % 2) == 0 and x1[X_SPEED] * fsign <= 0.0:
                 x1[X_SPEED] = 0.0  # the shaft reaches rest exactly here
-            accumulate(x, xm, x1, sub, t, p, has_cap, r, fsign, acc, work)
-            x[:] = x1
+            accumulate(x, xm, x1, sub, t, p, has_cap, r, fsign, acc, work, False)
+            carry[0] = 0
+            for k in range(N_STATE):
+                x[k] = x1[k]
             remaining -= sub
             t += sub
             splits += 1
@@ -434,7 +509,11 @@ def advance(
                 if ib <= 0.0 and p[P_VCMD] != 0.0:
                     return STATUS_REGEN_NO_PATH, t
         else:
-            accumulate(x, xm, x1, step, t, p, has_cap, r, fsign, acc, work)
+            accumulate(
+                x, xm, x1, step, t, p, has_cap, r, fsign, acc, work, carry[0] == 1 and carry[1] == r
+            )
+            carry[0] = 1
+            carry[1] = r
             for k in range(N_STATE):
                 x[k] = x1[k]
             t += step
@@ -480,54 +559,12 @@ def apply_event(x, p, index, value, acc):
 
 
 @njit(cache=True)
-def run_kernel(p0, x0, has_cap, h, n_steps, n_sub, duration, ev_t, ev_i, ev_v, rec, acc, xf):
-    """Run the whole scenario.
+def start_run(p, x, has_cap, ev_t, ev_i, ev_v, counters, rec, acc):
+    """Apply the events at t = 0, set the peak trackers and write trace row 0.
 
-    Parameters
-    ----------
-    p0 : float array (N_PARAM,)
-        Parameters at t = 0 [SI]; copied, not changed.
-    x0 : float array (N_STATE,)
-        Initial state [A, rad/s, rad, V].
-    has_cap : bool
-        A bus capacitor is present (state ``X_BUS`` is live).
-    h : float
-        Nominal step [s].
-    n_steps, n_sub : int
-        Number of steps; a trace row every ``n_sub`` steps (and at the end).
-    duration : float
-        End time [s]; the last step is shortened to land on it.
-    ev_t, ev_i, ev_v : arrays
-        Event times [s] (sorted), parameter indices and new values [SI].
-    rec : float array (N_REC, rows)
-        Trace columns, rows filled in order.
-    acc : float array (N_ACC,)
-        Integrals and peaks, zero on entry.
-    xf : float array (N_STATE,)
-        Final state (written).
-
-    Returns
-    -------
-    status : int
-        ``STATUS_OK`` or the reason the run stopped.
-    t_stop : float
-        Time reached [s].
-    rows : int
-        Trace rows written.
+    ``p`` and ``x`` are the run's working parameter and state vectors (changed in place);
+    ``counters`` (int64, 2) holds the next event and the next trace row between calls.
     """
-    p = p0.copy()
-    x = x0.copy()
-    cache = np.zeros((N_REGIME + 1, 6, N_STATE, N_STATE))
-    valid = np.zeros(N_REGIME, dtype=np.bool_)
-    work = np.zeros((3, 7))
-    b = np.zeros(N_STATE)
-    x1 = np.zeros(N_STATE)
-    xm = np.zeros(N_STATE)
-    xt = np.zeros(N_STATE)
-    xmt = np.zeros(N_STATE)
-    force = np.zeros(N_STATE)
-    dgv = np.zeros(N_STATE)
-    amat = np.zeros((N_STATE, N_STATE))
     n_ev = ev_t.shape[0]
     k_ev = 0
     while k_ev < n_ev and ev_t[k_ev] <= 0.0:
@@ -539,34 +576,92 @@ def run_kernel(p0, x0, has_cap, h, n_steps, n_sub, duration, ev_t, ev_i, ev_v, r
     acc[A_BUS_MIN] = vb0
     acc[A_PEAK_I] = abs(x[X_CURRENT])
     record_row(x, p, has_cap, 0.0, rec, 0)
-    row = 1
-    t = 0.0
+    counters[0] = k_ev
+    counters[1] = 1
+
+
+@njit(cache=True)
+def run_steps(
+    p,
+    x,
+    has_cap,
+    h,
+    k_first,
+    k_last,
+    n_steps,
+    n_sub,
+    duration,
+    ev_t,
+    ev_i,
+    ev_v,
+    counters,
+    rec,
+    acc,
+):
+    """Advance the run over steps ``k_first .. k_last`` (1-based, inclusive).
+
+    A run is :func:`start_run` followed by any number of calls covering ``1 .. n_steps`` in
+    order, so that the caller can report progress between them; the state lives in ``p``,
+    ``x``, ``counters``, ``rec`` and ``acc``.
+
+    Parameters
+    ----------
+    p : float array (N_PARAM,)
+        Working parameters [SI], changed by events.
+    x : float array (N_STATE,)
+        State [A, rad/s, rad, V], advanced in place.
+    has_cap : bool
+        A bus capacitor is present (state ``X_BUS`` is live).
+    h : float
+        Nominal step [s]; step ``k`` ends at ``min(k h, duration)``.
+    k_first, k_last : int
+        Steps to take.
+    n_steps, n_sub : int
+        Steps in the run; a trace row every ``n_sub`` steps and after the last.
+    duration : float
+        End time [s].
+    ev_t, ev_i, ev_v : arrays
+        Event times [s] (sorted), parameter indices and new values [SI].
+    counters : int64 array (2,)
+        Next event index and next trace row.
+    rec : float array (N_REC, rows)
+        Trace columns.
+    acc : float array (N_ACC,)
+        Integrals and peaks.
+
+    Returns
+    -------
+    status : int
+        ``STATUS_OK`` or the reason the run stopped.
+    t : float
+        Time reached [s].
+    """
+    cache = np.zeros((N_REGIME + 1, 8, N_STATE, N_STATE))
+    valid = np.zeros(N_REGIME, dtype=np.bool_)
+    work = np.zeros((3, 7))
+    carry = np.zeros(2, dtype=np.int64)  # work[2] valid at x (1/0), for regime carry[1]
+    b = np.zeros(N_STATE)
+    x1 = np.zeros(N_STATE)
+    xm = np.zeros(N_STATE)
+    xt = np.zeros(N_STATE)
+    xmt = np.zeros(N_STATE)
+    force = np.zeros(N_STATE)
+    dgv = np.zeros(N_STATE)
+    amat = np.zeros((N_STATE, N_STATE))
+    n_ev = ev_t.shape[0]
+    k_ev = counters[0]
+    row = counters[1]
+    t = min((k_first - 1) * h, duration)
     status = STATUS_OK
-    for k in range(1, n_steps + 1):
+    for k in range(k_first, k_last + 1):
         t_end = min(k * h, duration)
         while k_ev < n_ev and ev_t[k_ev] <= t_end:
             te = ev_t[k_ev]
             if te > t:
                 status, t = advance(
-                    x,
-                    p,
-                    has_cap,
-                    te - t,
-                    h,
-                    t,
-                    cache,
-                    valid,
-                    acc,
-                    work,
-                    b,
-                    x1,
-                    xm,
-                    xt,
-                    xmt,
-                    force,
-                    dgv,
-                    amat,
-                )
+                    x, p, has_cap, te - t, h, t, cache, valid, acc, work, carry,
+                    b, x1, xm, xt, xmt, force, dgv, amat,
+                )  # fmt: skip
                 if status != STATUS_OK:
                     break
                 t = te
@@ -574,29 +669,14 @@ def run_kernel(p0, x0, has_cap, h, n_steps, n_sub, duration, ev_t, ev_i, ev_v, r
                 apply_event(x, p, ev_i[k_ev], ev_v[k_ev], acc)
                 k_ev += 1
             valid[:] = False
+            carry[0] = 0
         if status != STATUS_OK:
             break
         if t_end > t:
             status, t = advance(
-                x,
-                p,
-                has_cap,
-                t_end - t,
-                h,
-                t,
-                cache,
-                valid,
-                acc,
-                work,
-                b,
-                x1,
-                xm,
-                xt,
-                xmt,
-                force,
-                dgv,
-                amat,
-            )
+                x, p, has_cap, t_end - t, h, t, cache, valid, acc, work, carry,
+                b, x1, xm, xt, xmt, force, dgv, amat,
+            )  # fmt: skip
             if status != STATUS_OK:
                 break
         t = t_end
@@ -606,8 +686,9 @@ def run_kernel(p0, x0, has_cap, h, n_steps, n_sub, duration, ev_t, ev_i, ev_v, r
     if status != STATUS_OK and row < rec.shape[1]:
         record_row(x, p, has_cap, t, rec, row)
         row += 1
-    xf[:] = x
-    return status, t, row
+    counters[0] = k_ev
+    counters[1] = row
+    return status, t
 
 
-__all__ = ["run_kernel", "N_REC"]
+__all__ = ["start_run", "run_steps"]

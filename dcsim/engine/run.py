@@ -2,37 +2,57 @@
 
 from __future__ import annotations
 
+from collections.abc import Callable
+
 import numpy as np
 
 from dcsim.engine import layout as L
 from dcsim.engine.assemble import KernelInputs, assemble
-from dcsim.engine.kernel import run_kernel
+from dcsim.engine.kernel import run_steps, start_run
 from dcsim.errors import SimulationError
 from dcsim.results.trace import SimulationResult, Trace
 from dcsim.scenario.schema import Scenario
 
+CHUNK_STEPS = 2_000_000
+"""Steps per kernel call; between calls ``simulate`` reports progress."""
 
-def run_inputs(ki: KernelInputs) -> tuple[int, float, np.ndarray, np.ndarray, np.ndarray]:
-    """Run the kernel on assembled inputs; returns (status, t_stop, rec, acc, final state)."""
+
+def run_inputs(
+    ki: KernelInputs, progress: Callable[[float], None] | None = None
+) -> tuple[int, float, np.ndarray, np.ndarray, np.ndarray]:
+    """Run the kernel on assembled inputs.
+
+    Parameters
+    ----------
+    ki : KernelInputs
+        From :func:`~dcsim.engine.assemble.assemble`.
+    progress : callable, optional
+        Called with the fraction done (0..1) after each chunk of :data:`CHUNK_STEPS` steps.
+
+    Returns
+    -------
+    status, t_stop, rec, acc, final_state
+        Kernel status, time reached [s], trace columns (N_REC, rows), accumulators and state.
+    """
     rec = np.zeros((L.N_REC, ki.rows))
     acc = np.zeros(L.N_ACC)
-    xf = np.zeros(L.N_STATE)
-    status, t_stop, rows = run_kernel(
-        ki.params,
-        ki.state0,
-        ki.has_capacitor,
-        ki.step_s,
-        ki.n_steps,
-        ki.steps_per_row,
-        ki.duration_s,
-        ki.event_time_s,
-        ki.event_index,
-        ki.event_value,
-        rec,
-        acc,
-        xf,
-    )
-    return int(status), float(t_stop), rec[:, :rows], acc, xf
+    p = ki.params.copy()
+    x = ki.state0.copy()
+    counters = np.zeros(2, dtype=np.int64)
+    args = (ki.event_time_s, ki.event_index, ki.event_value)
+    start_run(p, x, ki.has_capacitor, *args, counters, rec, acc)
+    status, t_stop = L.STATUS_OK, 0.0
+    for k_first in range(1, ki.n_steps + 1, CHUNK_STEPS):
+        k_last = min(k_first + CHUNK_STEPS - 1, ki.n_steps)
+        status, t_stop = run_steps(
+            p, x, ki.has_capacitor, ki.step_s, k_first, k_last, ki.n_steps,
+            ki.steps_per_row, ki.duration_s, *args, counters, rec, acc,
+        )  # fmt: skip
+        if progress is not None:
+            progress(k_last / ki.n_steps)
+        if status != L.STATUS_OK:
+            break
+    return int(status), float(t_stop), rec[:, : counters[1]], acc, x
 
 
 def _stop_message(sc: Scenario, ki: KernelInputs, status: int, t_stop: float) -> str:
@@ -77,7 +97,9 @@ def energy_account(ki: KernelInputs, acc: np.ndarray, xf: np.ndarray) -> dict[st
     return terms
 
 
-def simulate(scenario: Scenario) -> SimulationResult:
+def simulate(
+    scenario: Scenario, progress: Callable[[float], None] | None = None
+) -> SimulationResult:
     """Run a scenario and return its trace and summary.
 
     Pure: the same scenario gives the same result.
@@ -86,6 +108,8 @@ def simulate(scenario: Scenario) -> SimulationResult:
     ----------
     scenario : Scenario
         A validated scenario (from :func:`dcsim.load_scenario`).
+    progress : callable, optional
+        Called with the fraction done (0..1) during long runs.
 
     Returns
     -------
@@ -100,7 +124,7 @@ def simulate(scenario: Scenario) -> SimulationResult:
         The run could not go on (the message says when and the likely cause).
     """
     ki = assemble(scenario)
-    status, t_stop, rec, acc, xf = run_inputs(ki)
+    status, t_stop, rec, acc, xf = run_inputs(ki, progress)
     if status != L.STATUS_OK:
         raise SimulationError(_stop_message(scenario, ki, status, t_stop))
     columns = {name: rec[k] for k, name in enumerate(L.RECORD_NAMES)}

@@ -63,7 +63,7 @@ def friction_state(
     return False, 1.0 if speed_rad_s > 0.0 else -1.0
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True)
 def fill_shaft_rows(
     a: np.ndarray,
     b: np.ndarray,

@@ -68,7 +68,7 @@ def bus_without_capacitor(
     return bus, power_W / bus
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True)
 def fill_bus_row(
     a: np.ndarray,
     b: np.ndarray,
