@@ -26,7 +26,7 @@ from numba import njit
 _PADE_ORDER = 6
 
 
-@njit(cache=True)
+@njit(cache=True, error_model="numpy")
 def expm(a: np.ndarray) -> np.ndarray:
     """Matrix exponential by scaling and squaring with the [6/6] Pade approximant [1]_.
 
@@ -71,7 +71,7 @@ def expm(a: np.ndarray) -> np.ndarray:
     return e
 
 
-@njit(cache=True)
+@njit(cache=True, error_model="numpy")
 def phi_blocks(a: np.ndarray, h: float):
     """Exact-step propagators of ``x' = A x + b + g(t)`` over a step ``h`` (Higham [2]_).
 

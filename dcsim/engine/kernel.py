@@ -95,7 +95,7 @@ BRIDGE_FULL_POS = 1
 BRIDGE_FULL_NEG = 2
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True, error_model="numpy", inline="always")
 def _bridge_state(x, p, has_cap):
     """0: bridge applies the command; 1 / 2: fully on, positive / negative."""
     vc = p[P_VCMD]
@@ -115,7 +115,7 @@ def _bridge_state(x, p, has_cap):
     return BRIDGE_FULL_POS if vc > 0.0 else BRIDGE_FULL_NEG
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True, error_model="numpy", inline="always")
 def regime_of(x, p, has_cap):
     """Regime code and Coulomb friction sign at state ``x``."""
     stuck, fsign = friction_state(
@@ -127,7 +127,7 @@ def regime_of(x, p, has_cap):
     return r, fsign
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True, error_model="numpy", inline="always")
 def bus_state(x, p, has_cap, r):
     """Bus voltage, armature voltage, bridge bus current and supply current [V, V, A, A]."""
     bridge = (r // 2) % 3
@@ -164,7 +164,7 @@ def bus_state(x, p, has_cap, r):
     return vb, va, ib, isup
 
 
-@njit(cache=True)
+@njit(cache=True, error_model="numpy")
 def system_matrix(r, p, has_cap, a):
     """Fill ``A_r`` (``a`` is zeroed first). Runs only when a propagator is (re)built."""
     a[:, :] = 0.0
@@ -186,7 +186,7 @@ def system_matrix(r, p, has_cap, a):
     fill_shaft_rows(a, np.zeros(N_STATE), p[P_K], p[P_J], p[P_B], 0.0, stuck)
 
 
-@njit(cache=True)
+@njit(cache=True, error_model="numpy")
 def forcing(r, fsign, p, has_cap, b, dummy):
     """Fill the constant forcing ``b_r`` of the step (``dummy``: a scratch matrix)."""
     b[:] = 0.0
@@ -204,7 +204,7 @@ def forcing(r, fsign, p, has_cap, b, dummy):
         fill_bus_row(dummy, b, p[P_VS], p[P_RS], p[P_C], not blocked, 0.0)
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True, error_model="numpy", inline="always")
 def guard(x, p, has_cap, r, fsign):
     """Smallest guard of regime ``r`` at ``x``: >= 0 while the regime holds."""
     g = math.inf
@@ -239,7 +239,7 @@ def guard(x, p, has_cap, r, fsign):
     return g
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True, error_model="numpy", inline="always")
 def _matvec_add(cache, slot, which, v, out, scale):
     """``out += scale * cache[slot, which] @ v``, indexing in place.
 
@@ -253,7 +253,7 @@ def _matvec_add(cache, slot, which, v, out, scale):
         out[i] += scale * s
 
 
-@njit(cache=True)
+@njit(cache=True, error_model="numpy")
 def propagate(x, b, cache, slot, nl_coef, x1, xm, force, dg_vec):
     """Advance one (sub-)step: exact for the linear part, a polynomial correction for the
     bus term.
@@ -307,7 +307,7 @@ def propagate(x, b, cache, slot, nl_coef, x1, xm, force, dg_vec):
             )
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True, error_model="numpy", inline="always")
 def powers(x, p, has_cap, r, fsign, work, row):
     """Integrands at ``x`` into ``work[row]``: i^2, source power, source and copper loss,
     friction, load; bus voltage."""
@@ -323,7 +323,7 @@ def powers(x, p, has_cap, r, fsign, work, row):
     work[row, 6] = vb
 
 
-@njit(cache=True)
+@njit(cache=True, error_model="numpy")
 def accumulate(x0, xm, x1, hh, t0, p, has_cap, r, fsign, acc, work, reuse_start):
     """Add Simpson's-rule integrals over a (sub-)step and update peaks.
 
@@ -349,7 +349,7 @@ def accumulate(x0, xm, x1, hh, t0, p, has_cap, r, fsign, acc, work, reuse_start)
     _peaks(x1, t0 + hh, work[2, 6], acc)
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True, error_model="numpy", inline="always")
 def _peaks(x, t, bus_V, acc):
     ia = abs(x[X_CURRENT])
     if ia > acc[A_PEAK_I]:
@@ -359,7 +359,7 @@ def _peaks(x, t, bus_V, acc):
     acc[A_BUS_MIN] = min(acc[A_BUS_MIN], bus_V)
 
 
-@njit(cache=True)
+@njit(cache=True, error_model="numpy")
 def store_propagators(r, p, has_cap, hh, a, cache, slot):
     """Build ``A_r`` and store the propagators of steps ``hh`` and ``hh/2`` in ``cache[slot]``."""
     system_matrix(r, p, has_cap, a)
@@ -375,7 +375,7 @@ def store_propagators(r, p, has_cap, hh, a, cache, slot):
     cache[slot, 7] = f3h
 
 
-@njit(cache=True)
+@njit(cache=True, error_model="numpy")
 def locate_crossing(
     x, p, has_cap, r, fsign, step, h_nom, gm, g1, b, nl, cache, a, x1, xm, xt, xmt, force, dgv
 ):
@@ -426,14 +426,17 @@ def locate_crossing(
     return sub
 
 
-@njit(cache=True)
+@njit(cache=True, error_model="numpy")
 def advance(
-    x, p, has_cap, hh, h_nom, t0, cache, valid, acc, work, carry, b, x1, xm, xt, xmt, force, dgv, a
-):
+    x, p, has_cap, hh, h_nom, t0, cache, bcache, valid, acc, work, carry,
+    b, x1, xm, xt, xmt, force, dgv, a,
+):  # fmt: skip
     """Advance ``x`` by ``hh`` seconds, locating regime changes; returns (status, time).
 
     ``cache[r]`` holds the propagators of the nominal step for regime ``r`` (built on first
-    use, dropped by events); slot ``N_REGIME`` is scratch for shortened steps. ``b`` ...
+    use, dropped by events); slot ``N_REGIME`` is scratch for shortened steps. ``bcache[r,
+    f]`` holds the forcing for friction direction ``f - 1``; ``valid[0, r]`` and
+    ``valid[1 + f, r]`` say which entries are built. ``b`` ...
     ``dgv`` (vectors) and ``a`` (matrix) are scratch too, so a step on cached propagators
     allocates nothing.
     """
@@ -453,14 +456,22 @@ def advance(
         # (k h - (k-1) h) uses the cached propagators of the nominal step.
         if abs(step - h_nom) <= 1e-7 * h_nom:
             step = h_nom
-            if not valid[r]:
+            if not valid[0, r]:
                 store_propagators(r, p, has_cap, h_nom, a, cache, r)
-                valid[r] = True
+                valid[0, r] = True
             slot = r
         else:
             store_propagators(r, p, has_cap, step, a, cache, scratch)
             slot = scratch
-        forcing(r, fsign, p, has_cap, b, a)
+        fi = int(fsign) + 1
+        if not valid[1 + fi, r]:
+            forcing(r, fsign, p, has_cap, b, a)
+            for k in range(N_STATE):
+                bcache[r, fi, k] = b[k]
+            valid[1 + fi, r] = True
+        else:
+            for k in range(N_STATE):
+                b[k] = bcache[r, fi, k]
         nl = 0.0
         if has_cap and (r // 2) % 3 == BRIDGE_CONTROL:
             nl = -p[P_VCMD] / p[P_C]
@@ -524,7 +535,7 @@ def advance(
     return STATUS_OK, t
 
 
-@njit(cache=True)
+@njit(cache=True, error_model="numpy")
 def record_row(x, p, has_cap, t, rec, row):
     """Write one trace row at time ``t``."""
     r, fsign = regime_of(x, p, has_cap)
@@ -549,7 +560,7 @@ def record_row(x, p, has_cap, t, rec, row):
     rec[R_BRIDGE_CURRENT, row] = ib
 
 
-@njit(cache=True)
+@njit(cache=True, error_model="numpy")
 def apply_event(x, p, index, value, acc):
     """Set parameter ``index`` to ``value``; locking a turning rotor removes its energy."""
     if index == P_LOCK and value > 0.5 and x[X_SPEED] != 0.0:
@@ -558,7 +569,67 @@ def apply_event(x, p, index, value, acc):
     p[index] = value
 
 
-@njit(cache=True)
+@njit(cache=True, error_model="numpy")
+def fast_steps(
+    k, k_last, x, p, has_cap, h, n_steps, n_sub, duration, ev_t, k_ev, t,
+    cache, bcache, valid, acc, work, carry, b, x1, xm, force, dgv, rec, row,
+):  # fmt: skip
+    """Take steps ``k, k+1, ...`` while each is the common case: a whole nominal step on
+    cached propagators, with no event and no regime change in it.
+
+    Kept small so that its loop compiles tight; returns at the first step that needs the
+    general path (:func:`advance`), leaving the state as it was before that step.
+
+    Returns
+    -------
+    k : int
+        The first step not taken.
+    status : int
+        ``STATUS_NONFINITE`` if the state stopped being finite, else ``STATUS_OK``.
+    t : float
+        Time reached [s].
+    row : int
+        Next trace row.
+    """
+    n_ev = ev_t.shape[0]
+    if (not has_cap) and p[P_REGEN] < 0.5:
+        return k, STATUS_OK, t, row  # the diode check without capacitor needs the general path
+    while k <= k_last:
+        t_end = min(k * h, duration)
+        if abs(t_end - t - h) > 1e-7 * h or (k_ev < n_ev and ev_t[k_ev] <= t_end):
+            break
+        r, fsign = regime_of(x, p, has_cap)
+        fi = int(fsign) + 1
+        if not (valid[0, r] and valid[1 + fi, r]):
+            break
+        for q in range(N_STATE):
+            b[q] = bcache[r, fi, q]
+        nl = 0.0
+        if has_cap and (r // 2) % 3 == BRIDGE_CONTROL:
+            nl = -p[P_VCMD] / p[P_C]
+        propagate(x, b, cache, r, nl, x1, xm, force, dgv)
+        if guard(xm, p, has_cap, r, fsign) < 0.0 or guard(x1, p, has_cap, r, fsign) < 0.0:
+            break
+        accumulate(
+            x, xm, x1, h, t, p, has_cap, r, fsign, acc, work, carry[0] == 1 and carry[1] == r
+        )
+        carry[0] = 1
+        carry[1] = r
+        finite = True
+        for q in range(N_STATE):
+            x[q] = x1[q]
+            finite = finite and math.isfinite(x1[q])
+        t = t_end
+        if not finite:
+            return k, STATUS_NONFINITE, t, row
+        if k % n_sub == 0 or k == n_steps:
+            record_row(x, p, has_cap, t, rec, row)
+            row += 1
+        k += 1
+    return k, STATUS_OK, t, row
+
+
+@njit(cache=True, error_model="numpy")
 def start_run(p, x, has_cap, ev_t, ev_i, ev_v, counters, rec, acc):
     """Apply the events at t = 0, set the peak trackers and write trace row 0.
 
@@ -580,7 +651,7 @@ def start_run(p, x, has_cap, ev_t, ev_i, ev_v, counters, rec, acc):
     counters[1] = 1
 
 
-@njit(cache=True)
+@njit(cache=True, error_model="numpy")
 def run_steps(
     p,
     x,
@@ -637,7 +708,8 @@ def run_steps(
         Time reached [s].
     """
     cache = np.zeros((N_REGIME + 1, 8, N_STATE, N_STATE))
-    valid = np.zeros(N_REGIME, dtype=np.bool_)
+    bcache = np.zeros((N_REGIME, 3, N_STATE))
+    valid = np.zeros((4, N_REGIME), dtype=np.bool_)
     work = np.zeros((3, 7))
     carry = np.zeros(2, dtype=np.int64)  # work[2] valid at x (1/0), for regime carry[1]
     b = np.zeros(N_STATE)
@@ -653,36 +725,41 @@ def run_steps(
     row = counters[1]
     t = min((k_first - 1) * h, duration)
     status = STATUS_OK
-    for k in range(k_first, k_last + 1):
+    k = k_first
+    while k <= k_last:
+        k, status, t, row = fast_steps(
+            k, k_last, x, p, has_cap, h, n_steps, n_sub, duration, ev_t, k_ev, t,
+            cache, bcache, valid, acc, work, carry, b, x1, xm, force, dgv, rec, row,
+        )  # fmt: skip
+        if status != STATUS_OK or k > k_last:
+            break
+        # the general path for step k: advance up to each event in it, then to its end
         t_end = min(k * h, duration)
-        while k_ev < n_ev and ev_t[k_ev] <= t_end:
-            te = ev_t[k_ev]
-            if te > t:
+        while True:
+            at_event = k_ev < n_ev and ev_t[k_ev] <= t_end
+            target = ev_t[k_ev] if at_event else t_end
+            if target > t:
                 status, t = advance(
-                    x, p, has_cap, te - t, h, t, cache, valid, acc, work, carry,
+                    x, p, has_cap, target - t, h, t, cache, bcache, valid, acc, work, carry,
                     b, x1, xm, xt, xmt, force, dgv, amat,
                 )  # fmt: skip
                 if status != STATUS_OK:
                     break
-                t = te
-            while k_ev < n_ev and ev_t[k_ev] == te:
+                t = target
+            if not at_event:
+                break
+            while k_ev < n_ev and ev_t[k_ev] == target:
                 apply_event(x, p, ev_i[k_ev], ev_v[k_ev], acc)
                 k_ev += 1
-            valid[:] = False
+            valid[:, :] = False
             carry[0] = 0
         if status != STATUS_OK:
             break
-        if t_end > t:
-            status, t = advance(
-                x, p, has_cap, t_end - t, h, t, cache, valid, acc, work, carry,
-                b, x1, xm, xt, xmt, force, dgv, amat,
-            )  # fmt: skip
-            if status != STATUS_OK:
-                break
         t = t_end
         if k % n_sub == 0 or k == n_steps:
             record_row(x, p, has_cap, t, rec, row)
             row += 1
+        k += 1
     if status != STATUS_OK and row < rec.shape[1]:
         record_row(x, p, has_cap, t, rec, row)
         row += 1

@@ -25,7 +25,7 @@ from numba import njit
 from dcsim.engine.layout import X_BUS, X_CURRENT, X_SPEED
 
 
-@njit(cache=True)
+@njit(cache=True, error_model="numpy")
 def armature_current_rate(
     v_arm_V: float, current_A: float, speed_rad_s: float, r_ohm: float, l_H: float, k: float
 ) -> float:
@@ -49,7 +49,7 @@ def armature_current_rate(
     return (v_arm_V - r_ohm * current_A - k * speed_rad_s) / l_H
 
 
-@njit(cache=True)
+@njit(cache=True, error_model="numpy")
 def fill_armature_row(
     a: np.ndarray,
     b: np.ndarray,

@@ -28,7 +28,7 @@ from numba import njit
 from dcsim.engine.layout import X_CURRENT, X_POSITION, X_SPEED
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True, error_model="numpy", inline="always")
 def friction_state(
     speed_rad_s: float, drive_torque_Nm: float, coulomb_Nm: float, locked: bool
 ) -> tuple[bool, float]:
@@ -63,7 +63,7 @@ def friction_state(
     return False, 1.0 if speed_rad_s > 0.0 else -1.0
 
 
-@njit(cache=True)
+@njit(cache=True, error_model="numpy")
 def fill_shaft_rows(
     a: np.ndarray,
     b: np.ndarray,

@@ -33,7 +33,7 @@ from numba import njit
 from dcsim.engine.layout import X_BUS, X_CURRENT
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True, error_model="numpy", inline="always")
 def bus_without_capacitor(
     power_W: float, source_V: float, source_ohm: float
 ) -> tuple[float, float]:
@@ -68,7 +68,7 @@ def bus_without_capacitor(
     return bus, power_W / bus
 
 
-@njit(cache=True)
+@njit(cache=True, error_model="numpy")
 def fill_bus_row(
     a: np.ndarray,
     b: np.ndarray,
