@@ -90,6 +90,7 @@ from dcsim.plant.mechanics import fill_shaft_rows, friction_state
 from dcsim.power.bus import bus_without_capacitor, fill_bus_row
 
 N_REGIME = 12  # 2 shaft states x 3 bridge states x 2 source states
+N_WORK = 10  # values per point kept by `powers`
 BRIDGE_CONTROL = 0
 BRIDGE_FULL_POS = 1
 BRIDGE_FULL_NEG = 2
@@ -310,7 +311,7 @@ def propagate(x, b, cache, slot, nl_coef, x1, xm, force, dg_vec):
 @njit(cache=True, error_model="numpy", inline="always")
 def powers(x, p, has_cap, r, fsign, work, row):
     """Integrands at ``x`` into ``work[row]``: i^2, source power, source and copper loss,
-    friction, load; bus voltage."""
+    friction, load; then bus voltage, armature voltage, bridge and supply current."""
     vb, va, ib, isup = bus_state(x, p, has_cap, r)
     i = x[X_CURRENT]
     w = x[X_SPEED]
@@ -321,6 +322,9 @@ def powers(x, p, has_cap, r, fsign, work, row):
     work[row, 4] = p[P_B] * w * w + p[P_TC] * fsign * w
     work[row, 5] = p[P_TL] * w
     work[row, 6] = vb
+    work[row, 7] = va
+    work[row, 8] = ib
+    work[row, 9] = isup
 
 
 @njit(cache=True, error_model="numpy")
@@ -333,7 +337,7 @@ def accumulate(x0, xm, x1, hh, t0, p, has_cap, r, fsign, acc, work, reuse_start)
     w0 = hh / 6.0
     wm = 4.0 * hh / 6.0
     if reuse_start:
-        for k in range(7):
+        for k in range(N_WORK):
             work[0, k] = work[2, k]
     else:
         powers(x0, p, has_cap, r, fsign, work, 0)
@@ -540,6 +544,12 @@ def record_row(x, p, has_cap, t, rec, row):
     """Write one trace row at time ``t``."""
     r, fsign = regime_of(x, p, has_cap)
     vb, va, ib, isup = bus_state(x, p, has_cap, r)
+    write_row(x, p, r, fsign, t, vb, va, ib, isup, rec, row)
+
+
+@njit(cache=True, error_model="numpy", inline="always")
+def write_row(x, p, r, fsign, t, vb, va, ib, isup, rec, row):
+    """Store the trace columns of state ``x`` in regime ``r`` with its bus quantities."""
     i = x[X_CURRENT]
     rec[R_TIME, row] = t
     rec[R_CURRENT, row] = i
@@ -623,7 +633,8 @@ def fast_steps(
         if not finite:
             return k, STATUS_NONFINITE, t, row
         if k % n_sub == 0 or k == n_steps:
-            record_row(x, p, has_cap, t, rec, row)
+            # the end point's bus quantities are in work[2] (same regime: no guard crossed)
+            write_row(x, p, r, fsign, t, work[2, 6], work[2, 7], work[2, 8], work[2, 9], rec, row)
             row += 1
         k += 1
     return k, STATUS_OK, t, row
@@ -710,7 +721,7 @@ def run_steps(
     cache = np.zeros((N_REGIME + 1, 8, N_STATE, N_STATE))
     bcache = np.zeros((N_REGIME, 3, N_STATE))
     valid = np.zeros((4, N_REGIME), dtype=np.bool_)
-    work = np.zeros((3, 7))
+    work = np.zeros((3, N_WORK))
     carry = np.zeros(2, dtype=np.int64)  # work[2] valid at x (1/0), for regime carry[1]
     b = np.zeros(N_STATE)
     x1 = np.zeros(N_STATE)
