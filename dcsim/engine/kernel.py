@@ -8,7 +8,8 @@ diode conducting or blocked). The kernel advances that linear part *exactly* wit
 exponential (:mod:`dcsim.engine.expm`), so a very stiff armature (electrical time constant
 below a microsecond beside a mechanical one of tens of milliseconds) is stable and exact at
 any step. The only non-linear term, the bus current ``v_a i / v`` of the bridge in control
-with a bus capacitor, enters through the second-order ETD2RK correction of Cox & Matthews.
+with a bus capacitor, is predicted by the ETD2RK scheme of Cox & Matthews and corrected once
+with the term quadratic over the step, integrated exactly with phi1..phi3 (third order).
 
 Regime changes are located inside the step: each regime has a guard function (speed for a
 sliding shaft, breakaway margin for a stuck one, bus headroom for the bridge, the diode's

@@ -93,7 +93,7 @@ def fill_bus_row(
     bridge_gain : float
         Duty of a fully-on bridge (+1 / -1): the bridge draws ``bridge_gain * i``. For the
         bridge in control (0 here) the non-linear bus current ``v_a i / v`` is handled by the
-        kernel's ETD2 correction.
+        kernel's polynomial correction (see :func:`dcsim.engine.kernel.propagate`).
     """
     if conducting:
         a[X_BUS, X_BUS] = -1.0 / (source_ohm * cap_F)
