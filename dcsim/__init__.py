@@ -26,6 +26,7 @@ _LAZY = {
     "simulate": "dcsim.engine.run",
     "SimulationResult": "dcsim.results.trace",
     "Trace": "dcsim.results.trace",
+    "Summary": "dcsim.results.trace",
     "write_outputs": "dcsim.results.io",
     "DcsimError": "dcsim.errors",
     "ScenarioError": "dcsim.errors",
@@ -38,6 +39,7 @@ __all__ = [
     "ScenarioError",
     "SimulationError",
     "SimulationResult",
+    "Summary",
     "Trace",
     "__version__",
     "load_scenario",
@@ -50,7 +52,7 @@ if TYPE_CHECKING:  # pragma: no cover
     from dcsim.engine.run import simulate
     from dcsim.errors import DcsimError, ScenarioError, SimulationError
     from dcsim.results.io import write_outputs
-    from dcsim.results.trace import SimulationResult, Trace
+    from dcsim.results.trace import SimulationResult, Summary, Trace
     from dcsim.scenario.load import load_scenario, load_scenario_text
     from dcsim.scenario.schema import Scenario
 

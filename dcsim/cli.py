@@ -11,6 +11,7 @@ The engine, numpy and matplotlib are imported inside the commands that need them
 from __future__ import annotations
 
 import argparse
+import os
 import sys
 import time
 from collections.abc import Callable, Sequence
@@ -139,6 +140,8 @@ class _Progress:
 
 def _load(given: str) -> Scenario:
     """Load a scenario file, turning a missing or unreadable file into bad input."""
+    if not given.strip():
+        raise _BadInput("expected a scenario file name, found an empty string")
     path = Path(given)
     if not path.exists():
         raise _BadInput(f"{given}: file not found")
@@ -155,10 +158,26 @@ def _load(given: str) -> Scenario:
         raise _BadInput(f"{given}: cannot read the file (permission denied)") from None
 
 
-def _run_and_write(given: str, label: str, out_dir: Path) -> int:
-    """Shared body of ``run`` and ``demo``."""
+def _check_out_dir(out_dir: Path) -> None:
+    """Refuse, before any simulation, an output directory that cannot be made or written."""
     if out_dir.exists() and not out_dir.is_dir():
         raise _BadInput(f"{out_dir}: expected an output directory, found a file")
+    parent = out_dir
+    while not parent.exists():
+        if parent == parent.parent:
+            break
+        parent = parent.parent
+    if parent.exists() and not parent.is_dir():
+        raise _BadInput(f"{out_dir}: expected an output directory, found that {parent} is a file")
+    if parent.exists() and not os.access(parent, os.W_OK | os.X_OK):
+        raise _BadInput(
+            f"{out_dir}: expected a writable output directory, found {parent} not writable"
+        )
+
+
+def _run_and_write(given: str, label: str, out_dir: Path) -> int:
+    """Shared body of ``run`` and ``demo``."""
+    _check_out_dir(out_dir)
     scenario = _load(given)
 
     from dcsim.engine.run import simulate
@@ -187,6 +206,11 @@ def _cmd_demo(args: argparse.Namespace) -> int:
 
 def _cmd_validate(args: argparse.Namespace) -> int:
     scenario = _load(args.scenario)
+    # the run's plan too (step, rows, events against the parameters): what `run` would
+    # refuse, `validate` refuses. assemble needs numpy only, not the compiled kernel.
+    from dcsim.engine.assemble import assemble
+
+    assemble(scenario)
     n = len(scenario.events)
     duration = scenario.simulation.duration
     _write(sys.stdout, f"ok: {args.scenario} ({duration:g} s, {n} event{'' if n == 1 else 's'})\n")

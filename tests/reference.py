@@ -190,8 +190,10 @@ class LinearResponse:
 def system_matrix(R: float, L: float, K: float, J: float, B: float = 0.0) -> np.ndarray:
     """State matrix of ``x = (i, w)`` [1/s], ``x' = A x + (v/L, -T/J)``.
 
-    Source: the DC motor equations of University of Michigan *Control Tutorials*, "DC Motor
-    Speed: System Modeling" (CHECKS.md, confirmed), written in state form.
+    Source: derived -- the armature-circuit and shaft equations of the armature-controlled DC
+    motor, ``L di/dt = v - R i - K w`` and ``J dw/dt = K i - B w - T`` (Hughes & Drury,
+    *Electric Motors and Drives*, 4th ed., ch. 3; Franklin, Powell & Emami-Naeini, *Feedback
+    Control of Dynamic Systems*, DC-motor model -- chapter from memory), written in state form.
     """
     return np.array([[-R / L, -K / L], [K / J, -B / J]])
 
@@ -251,8 +253,10 @@ def characteristic_coefficients(
 ) -> np.ndarray:
     """Coefficients of ``(J s + B)(L s + R) + K^2`` (highest power first).
 
-    Source: University of Michigan *Control Tutorials* (online), "DC Motor
-    Speed: System Modeling" (transfer function w/V = K / ((Js+b)(Ls+R) + K^2)).
+    Source: derived -- speed/voltage transfer function ``K / ((J s + b)(L s + R) + K^2)`` of the
+    armature-controlled DC motor (Hughes & Drury, *Electric Motors and Drives*, 4th ed., ch. 3;
+    Franklin, Powell & Emami-Naeini, *Feedback Control of Dynamic Systems*, DC-motor model --
+    chapter from memory); its denominator is this polynomial.
     """
     return np.polymul([J, B], [L, R]) + np.array([0.0, 0.0, K * K])
 
@@ -702,7 +706,7 @@ def fastest_time_constant(sc: Scenario) -> float:
     """Fastest time constant of a drive with a bus capacitor [s], from its parameters: source
     R_s C, armature R C, L / (R + R_s), sqrt(L C) and the electromechanical J (R + R_s) / K^2
     (the last as in dcsim.engine.assemble, after Hughes & Drury, Electric Motors and Drives,
-    ch. 4)."""
+    4th ed., ch. 4)."""
     m, s = sc.motor, sc.supply
     j = m.inertia + sc.load.inertia
     r_tot = m.resistance + s.resistance

@@ -352,3 +352,22 @@ def test_demo_end_to_end(tmp_path):
     assert done.returncode == 0, done.stderr
     assert {p.name for p in (tmp_path / "demo-out").iterdir()} == OUTPUT_NAMES
     assert "Energy account" in done.stdout and CAUTION in done.stdout
+
+
+def test_validate_every_bad_loading_case_in_process(tmp_path, capsys):
+    """Every bad-input case of the loader tests, through ``dcsim validate``: exit 2, one line."""
+    pytest.importorskip("dcsim.scenario.load")
+    from test_scenario_loading import BAD
+
+    assert BAD  # the list exists and is not empty
+    for index, (name, text, _key, _fragments) in enumerate(BAD):
+        slug = "".join(c if c.isalnum() else "_" for c in name)
+        path = tmp_path / f"bad_{index:02d}_{slug}.toml"
+        path.write_text(text, encoding="utf-8")
+        code = cli.main(["validate", str(path)])
+        err = capsys.readouterr().err
+        assert code == 2, (name, err)
+        assert "Traceback" not in err, name
+        lines = err.splitlines()
+        assert len(lines) == 1 and lines[0].strip(), (name, err)
+        assert path.name in lines[0], (name, lines[0])

@@ -34,13 +34,13 @@ from reference import (
 
 STATE_TOL = 1e-6  # see the module docstring
 
-# Source: University of Michigan Control Tutorials (online), "DC Motor Speed:
-# System Modeling" (parameters and results as given in CHECKS.md, confirmed).
+# The speed example parameter set of the project's check list (shared/design/CHECKS.md); its
+# expected values are recomputed in the tests below from the derived model.
 SPEED_EXAMPLE = dict(
     resistance=1.0, inductance=0.5, torque_constant=0.01, inertia=0.01, viscous_friction=0.1
 )
-# Source: same tutorials, "DC Motor Position: System Modeling" (parameters confirmed; poles and
-# gain derived, CHECKS.md).
+# The position example parameter set of the same check list (shared/design/CHECKS.md); poles and
+# gain are recomputed in the tests below from the derived model.
 POSITION_EXAMPLE = dict(
     resistance=4.0,
     inductance=2.75e-6,
@@ -72,17 +72,22 @@ def _assert_follows(res, ref, tol=STATE_TOL):
 
 
 # --------------------------------------------------------------------------------------------
-# The two worked examples
+# The two example parameter sets of the check list
 # --------------------------------------------------------------------------------------------
 
 
 def test_speed_example_published_values():
     m = _model(SPEED_EXAMPLE)
-    # Source: Control Tutorials, "DC Motor Speed: System Modeling": 1 V gives 0.0999 rad/s;
-    # printed to 4 decimals, so held to half a unit of the 4th decimal.
+    # Source: derived -- speed/voltage transfer function K/((Js+b)(Ls+R)+K^2) of the
+    # armature-controlled DC motor (Hughes & Drury, Electric Motors and Drives, 4th ed., ch. 3;
+    # Franklin, Powell & Emami-Naeini, Feedback Control of Dynamic Systems, DC-motor model --
+    # chapter from memory); DC gain K/(bR+K^2) and poles = roots of the characteristic
+    # polynomial computed by numpy.roots. Expected values from the check list
+    # (shared/design/CHECKS.md): 1 V gives 0.0999 rad/s, 4 decimals, so held to half a unit of
+    # the 4th decimal.
     assert abs(speed_gain(m["R"], m["K"], m["B"]) - 0.0999) <= 0.5e-4
-    # Poles -2.0025, -9.9975 (same source, 4 decimals): numpy roots of the characteristic
-    # polynomial (J s + b)(L s + R) + K^2.
+    # Poles -2.0025, -9.9975 (same source and check list, 4 decimals): numpy roots of the
+    # characteristic polynomial (J s + b)(L s + R) + K^2.
     poles = np.sort(np.roots(characteristic_coefficients(**m)).real)
     np.testing.assert_allclose(poles, [-9.9975, -2.0025], rtol=0, atol=0.5e-4)
     # The state matrix the closed form uses has the same eigenvalues (to rounding: 1e-12).
@@ -99,13 +104,16 @@ def test_speed_example_step_response_and_steady_state():
         motor=SPEED_EXAMPLE,
         supply=dict(voltage=1.0),
         voltage=1.0,
-        title="tutorial speed example, 1 V step",
+        title="check-list speed example, 1 V step",
     )
     res = simulate_checked(sc)
     ref = linear_response(res.trace["time_s"], **m, voltage=1.0)
     _assert_follows(res, ref)
     w_end = res.summary["final_speed_rad_s"]
-    # Source: Control Tutorials, "DC Motor Speed": 0.0999 rad/s at 1 V (4 decimals).
+    # Source: derived -- DC gain K/(bR+K^2) of the speed/voltage transfer function
+    # K/((Js+b)(Ls+R)+K^2) (Hughes & Drury, Electric Motors and Drives, 4th ed., ch. 3 --
+    # chapter from memory); 0.0999 rad/s at 1 V (4 decimals) per the check list
+    # (shared/design/CHECKS.md).
     assert abs(w_end - 0.0999) <= 0.5e-4
     # Steady state K V / (R b + K^2) exactly: the e^-30 transient and the rounding of 1e4 steps
     # are both far below 1e-9.
@@ -114,16 +122,19 @@ def test_speed_example_step_response_and_steady_state():
 
 def test_position_example_published_values():
     m = _model(POSITION_EXAMPLE)
-    # Source: Control Tutorials, "DC Motor Position: System Modeling" (CHECKS.md): theta/V =
-    # K / (s ((J s + b)(L s + R) + K^2)); poles 0, -59.23, -1.4545e6 (held to half a unit of
-    # the last printed digit).
+    # Source: derived -- position/voltage transfer function theta/V =
+    # K / (s ((J s + b)(L s + R) + K^2)) of the armature-controlled DC motor (Hughes & Drury,
+    # Electric Motors and Drives, 4th ed., ch. 3; Franklin, Powell & Emami-Naeini, Feedback
+    # Control of Dynamic Systems, DC-motor model -- chapter from memory); poles = roots computed
+    # by numpy.roots. Expected poles 0, -59.23, -1.4545e6 per the check list
+    # (shared/design/CHECKS.md), held to half a unit of the last printed digit.
     poles = np.sort(np.roots(np.append(characteristic_coefficients(**m), 0.0)).real)
     np.testing.assert_allclose(poles[2], 0.0, atol=1e-9)
     assert abs(poles[1] - -59.23) <= 0.005
     assert abs(poles[0] - -1.4545e6) <= 50.0
     # Stiffness: the poles are 2.5e4 apart.
     assert poles[0] / poles[1] > 2e4
-    # Velocity gain 35.83 rad/s per V (same source, 2 decimals).
+    # Velocity gain K/(bR+K^2) = 35.83 rad/s per V (same derivation and check list, 2 decimals).
     assert abs(speed_gain(m["R"], m["K"], m["B"]) - 35.83) <= 0.005
     # The closed form reaches it: 1 s is 59 slow time constants (e^-59: nothing left).
     far = linear_response(np.array([1.0]), **m, voltage=1.0)
@@ -137,7 +148,7 @@ def test_position_example_stiff_step_response():
         motor=POSITION_EXAMPLE,
         supply=dict(voltage=1.0),
         voltage=1.0,
-        title="tutorial position example, 1 V step",
+        title="check-list position example, 1 V step",
     )
     res = simulate_checked(sc)
     ref = linear_response(res.trace["time_s"], **m, voltage=1.0)

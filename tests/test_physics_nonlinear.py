@@ -58,7 +58,8 @@ REFERENCE_ACCURACY = 10 * REFERENCE_RTOL  # of the peak: test_physics_linear che
 def _shuttle(command: float, step: float | None = None):
     return build_scenario(
         duration=0.1,
-        record_interval=1e-4,
+        # a set step must divide the record interval: record every step then
+        record_interval=1e-4 if step is None else step,
         motor=SHUTTLE,
         supply=SUPPLY,
         load=dict(torque=0.02),  # below the dry friction: the shaft starts at rest

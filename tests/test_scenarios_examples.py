@@ -105,7 +105,7 @@ def steady_speed(k: float, v: float, r: float, t_opp: float, b: float) -> float:
     From V = R I + K w and K I = B w + T (T: friction + load torque opposing rotation):
     w = (K V - R T) / (K^2 + R B) [rad/s].
     """
-    # Source: Hughes & Drury, Electric Motors and Drives, 5th ed., ch. 3 (steady-state
+    # Source: Hughes & Drury, Electric Motors and Drives, 4th ed., ch. 3 (steady-state
     # equations of the d.c. motor: V = E + I R, E = k w, T = k I).
     return (k * v - r * t_opp) / (k * k + r * b)
 

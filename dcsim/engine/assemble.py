@@ -36,8 +36,15 @@ error about (h/tau)^4 / 180 on an exponential, ~6e-7 here) and of the third-orde
 correction of the bus term."""
 
 
+MAX_USER_STEP_FRACTION = 0.25
+"""A step set by the user may be at most this fraction of the fastest time constant: the
+states are exact at any step, but the summary integrals use Simpson's rule over it (relative
+error about (h/tau)^4 / 180, 2e-5 at a quarter)."""
+
 DEFAULT_ROWS = 10_000
 MAX_STEPS = 500_000_000
+MAX_TRACE_BYTES = 2_000_000_000
+"""Largest trace a run may allocate [bytes] (rows x columns x 8)."""
 
 
 @dataclass(frozen=True)
@@ -157,6 +164,26 @@ def assemble(sc: Scenario) -> KernelInputs:
         record = _nice_interval(duration / DEFAULT_ROWS)
     if sc.simulation.step is not None:
         h = sc.simulation.step
+        fastest_name = min(taus, key=taus.get)
+        if h > fastest * MAX_USER_STEP_FRACTION:
+            raise ScenarioError(
+                f"expected a step of at most {fastest * MAX_USER_STEP_FRACTION:.3g} s (a "
+                f"quarter of the fastest time constant, {fastest_name} = {fastest:.3g} s), "
+                f"found {h:.3g} s: the states stay exact at any step, but I2t, the peaks and "
+                "the energy account are integrated over it; remove simulation.step to let "
+                "dcsim choose",
+                source=sc.source,
+                key="simulation.step",
+            )
+        if sc.simulation.record_interval is not None:
+            ratio = record / h
+            if ratio < 1.0 - 1e-9 or abs(ratio - round(ratio)) > 1e-9 * ratio:
+                raise ScenarioError(
+                    f"expected a whole multiple of simulation.step ({h:.6g} s), found "
+                    f"{record:.6g} s",
+                    source=sc.source,
+                    key="simulation.record_interval",
+                )
         n_sub = max(1, round(record / h))
         record = n_sub * h
     else:
@@ -167,12 +194,21 @@ def assemble(sc: Scenario) -> KernelInputs:
     if n_steps > MAX_STEPS:
         raise ScenarioError(
             f"expected at most {MAX_STEPS:.0e} steps, found {n_steps:.3g} "
-            f"(step {h:.3g} s over {duration:.3g} s); the fastest time constant is "
-            f"{fastest:.3g} s: set a larger simulation.step or a shorter duration",
+            f"(step {h:.3g} s over {duration:.3g} s, set by the fastest time constant, "
+            f"{fastest:.3g} s): shorten simulation.duration",
             source=sc.source,
             key="simulation.step",
         )
     rows = n_steps // n_sub + (1 if n_steps % n_sub else 0) + 2
+    if rows * L.N_REC * 8 > MAX_TRACE_BYTES:
+        raise ScenarioError(
+            f"expected at most {MAX_TRACE_BYTES // (L.N_REC * 8):.3g} trace rows (a "
+            f"{MAX_TRACE_BYTES / 1e9:.0f} GB trace), found {rows:.3g} ({duration:.3g} s "
+            f"recorded every {record:.3g} s): set a longer simulation.record_interval or a "
+            "shorter duration",
+            source=sc.source,
+            key="simulation.record_interval",
+        )
 
     x0 = np.zeros(L.N_STATE)
     has_cap = sc.supply.capacitance > 0.0

@@ -10,7 +10,7 @@ from dcsim.engine import layout as L
 from dcsim.engine.assemble import KernelInputs, assemble
 from dcsim.engine.kernel import run_steps, start_run
 from dcsim.errors import SimulationError
-from dcsim.results.trace import SimulationResult, Trace
+from dcsim.results.trace import SimulationResult, Summary, Trace
 from dcsim.scenario.schema import Scenario
 
 CHUNK_STEPS = 2_000_000
@@ -64,11 +64,18 @@ def _stop_message(sc: Scenario, ki: KernelInputs, status: int, t_stop: float) ->
             "supply.capacitance (and a brake resistor), or make the supply regenerative"
         )
     fastest = min(ki.time_constants_s.items(), key=lambda kv: kv[1])
-    return where + (
-        f"the state became non-finite; the step {ki.step_s:.3g} s may be too large for the "
-        f"fastest time constant ({fastest[0]}, {fastest[1]:.3g} s) -- remove or lower "
-        "simulation.step -- or the parameters give an unbounded solution"
-    )
+    if sc.simulation.step is not None:
+        cause = (
+            f"the step {ki.step_s:.3g} s set by simulation.step may be too large for the "
+            f"fastest time constant ({fastest[0]}, {fastest[1]:.3g} s) -- remove or lower it "
+            "-- or the parameters give an unbounded solution"
+        )
+    else:
+        cause = (
+            "the parameters give an unbounded solution or values beyond floating point "
+            "(check the magnitudes and units of the voltages, resistances and inertias)"
+        )
+    return where + "the state became non-finite; " + cause
 
 
 def energy_account(ki: KernelInputs, acc: np.ndarray, xf: np.ndarray) -> dict[str, float]:
@@ -78,10 +85,11 @@ def energy_account(ki: KernelInputs, acc: np.ndarray, xf: np.ndarray) -> dict[st
     kernel's full-rate integrals, so the residual measures the integration error.
     """
     p, x0 = ki.params, ki.state0
-    kinetic = 0.5 * p[L.P_J] * (xf[L.X_SPEED] ** 2 - x0[L.X_SPEED] ** 2)
-    stored = 0.5 * p[L.P_L] * (xf[L.X_CURRENT] ** 2 - x0[L.X_CURRENT] ** 2)
-    if ki.has_capacitor:
-        stored += 0.5 * p[L.P_C] * (xf[L.X_BUS] ** 2 - x0[L.X_BUS] ** 2)
+    with np.errstate(over="ignore", invalid="ignore"):  # overflow is reported by simulate
+        kinetic = 0.5 * p[L.P_J] * (xf[L.X_SPEED] ** 2 - x0[L.X_SPEED] ** 2)
+        stored = 0.5 * p[L.P_L] * (xf[L.X_CURRENT] ** 2 - x0[L.X_CURRENT] ** 2)
+        if ki.has_capacitor:
+            stored += 0.5 * p[L.P_C] * (xf[L.X_BUS] ** 2 - x0[L.X_BUS] ** 2)
     terms = {
         "energy_from_supply_J": float(acc[L.A_SUPPLY]),
         "energy_source_loss_J": float(acc[L.A_SOURCE_LOSS]),
@@ -92,8 +100,9 @@ def energy_account(ki: KernelInputs, acc: np.ndarray, xf: np.ndarray) -> dict[st
         "kinetic_energy_change_J": float(kinetic),
         "stored_energy_change_J": float(stored),
     }
-    spent = sum(v for k, v in terms.items() if k != "energy_from_supply_J")
-    terms["energy_balance_residual_J"] = terms["energy_from_supply_J"] - spent
+    with np.errstate(over="ignore", invalid="ignore"):
+        spent = sum(v for k, v in terms.items() if k != "energy_from_supply_J")
+        terms["energy_balance_residual_J"] = terms["energy_from_supply_J"] - spent
     return terms
 
 
@@ -139,6 +148,12 @@ def simulate(
         "min_bus_voltage_V": float(acc[L.A_BUS_MIN]),
     }
     summary.update(energy_account(ki, acc, xf))
+    bad = sorted(k for k, v in summary.items() if not np.isfinite(v))
+    if bad:
+        raise SimulationError(
+            f"{scenario.source}: the run's totals are not finite ({', '.join(bad)}): the "
+            "values exceed floating point; check the magnitudes and units of the scenario"
+        )
     summary.update(
         {
             "duration_s": ki.duration_s,
@@ -151,7 +166,7 @@ def simulate(
     return SimulationResult(
         scenario=scenario,
         trace=Trace(columns),
-        summary=summary,
+        summary=Summary(summary),
         step_s=ki.step_s,
         record_interval_s=ki.record_interval_s,
         event_times_s=tuple(sorted({float(t) for t in ki.event_time_s})),

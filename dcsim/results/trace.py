@@ -65,6 +65,43 @@ class Trace(Mapping):
         return len(self.columns["time_s"])
 
 
+class Summary(Mapping):
+    """Scalar results of one run, read-only, keyed as in ``summary.json`` (SI numbers).
+
+    ``summary["i2t_A2s"]`` [A^2*s], ``summary["peak_current_A"]`` [A], the energy account
+    (:data:`ENERGY_KEYS`, [J]) and ``energy_balance_residual_J`` [J]; ``dict(summary)`` gives a
+    plain, writable copy.
+    """
+
+    __slots__ = ("_values",)
+
+    def __init__(self, values: Mapping[str, float | int]) -> None:
+        self._values = dict(values)
+
+    def __getitem__(self, key: str) -> float | int:
+        try:
+            return self._values[key]
+        except KeyError:
+            raise KeyError(f"no summary key {key!r}; keys are {sorted(self._values)}") from None
+
+    def __iter__(self) -> Iterator[str]:
+        return iter(self._values)
+
+    def __len__(self) -> int:
+        return len(self._values)
+
+    def __repr__(self) -> str:
+        return f"Summary({self._values!r})"
+
+    @property
+    def energy_closure(self) -> float:
+        """``|energy_balance_residual_J|`` over the largest energy term [-]."""
+        terms = [abs(self._values[k]) for k in ENERGY_KEYS if k in self._values]
+        largest = max(terms, default=0.0)
+        residual = abs(self._values.get("energy_balance_residual_J", 0.0))
+        return residual / largest if largest > 0.0 else residual
+
+
 @dataclass(frozen=True)
 class SimulationResult:
     """Everything one run produced.
@@ -75,7 +112,7 @@ class SimulationResult:
         The scenario that was run.
     trace : Trace
         Recorded columns.
-    summary : dict
+    summary : Summary
         Scalar results keyed as in ``summary.json`` (SI numbers), including the energy account
         (:data:`ENERGY_KEYS`) and ``energy_balance_residual_J``.
     step_s : float
@@ -88,7 +125,7 @@ class SimulationResult:
 
     scenario: Scenario
     trace: Trace
-    summary: dict
+    summary: Summary
     step_s: float
     record_interval_s: float
     event_times_s: tuple[float, ...] = field(default_factory=tuple)

@@ -30,7 +30,7 @@ class KeySpec:
     unit : str or None
         pint unit the value is converted to (its SI unit); ``None`` for non-quantities.
     kind : str
-        ``"quantity"`` (number or unit string), ``"bool"``, or ``"choice"``.
+        ``"quantity"`` (number or unit string), ``"bool"``, ``"choice"`` or ``"text"``.
     default : object
         Default value in SI, or :data:`REQUIRED`.
     constraint : str
