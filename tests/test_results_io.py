@@ -83,6 +83,7 @@ def make_summary() -> dict:
         "energy_friction_J": 3.0,
         "energy_to_load_J": 40.0,
         "energy_shaft_lock_J": 0.0,
+        "energy_coupling_J": 0.0,
         "kinetic_energy_change_J": 31.0,
         "stored_energy_change_J": 0.75,
     }

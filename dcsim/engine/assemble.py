@@ -21,6 +21,7 @@ PARAM_OF_KEY: dict[str, int] = {
     "motor.viscous_friction": L.P_B,
     "motor.coulomb_friction": L.P_TC,
     "load.torque": L.P_TL,
+    "load.inertia": L.P_J,  # the event value is the load's; the kernel gets rotor + load
     "load.locked": L.P_LOCK,
     "supply.voltage": L.P_VS,
     "supply.resistance": L.P_RS,
@@ -143,6 +144,8 @@ def assemble(sc: Scenario) -> KernelInputs:
                     key=f"events[{n}].set",
                 )
             v = float(value)
+            if key == "load.inertia":
+                v += sc.motor.inertia
             times.append(ev.at)
             idx.append(PARAM_OF_KEY[key])
             vals.append(v)

@@ -44,6 +44,7 @@ from dcsim.engine.layout import (
     A_BUS_MAX,
     A_BUS_MIN,
     A_COPPER,
+    A_COUPLING,
     A_FRICTION,
     A_I2T,
     A_LOAD,
@@ -573,10 +574,27 @@ def write_row(x, p, r, fsign, t, vb, va, ib, isup, rec, row):
 
 @njit(cache=True, error_model="numpy")
 def apply_event(x, p, index, value, acc):
-    """Set parameter ``index`` to ``value``; locking a turning rotor removes its energy."""
-    if index == P_LOCK and value > 0.5 and x[X_SPEED] != 0.0:
-        acc[A_LOCK] += 0.5 * p[P_J] * x[X_SPEED] * x[X_SPEED]
+    """Set parameter ``index`` to ``value``, with the energy a sudden change implies.
+
+    Locking a turning rotor removes its kinetic energy (``A_LOCK``). A change of the inertia
+    on the shaft is a load mass engaging or being released: an engaging mass (at rest) shares
+    the angular momentum, ``w' = J w / J'``, and the coupling dissipates
+    ``J w^2 / 2 - J' w'^2 / 2``; a released mass keeps its speed and carries its kinetic energy
+    ``(J - J') w^2 / 2`` away. Both go to ``A_COUPLING`` (conservation of angular momentum in a
+    perfectly inelastic coupling; e.g. Meriam & Kraige, *Engineering Mechanics: Dynamics*,
+    angular impulse and momentum -- chapter from memory).
+    """
+    w = x[X_SPEED]
+    if index == P_LOCK and value > 0.5 and w != 0.0:
+        acc[A_LOCK] += 0.5 * p[P_J] * w * w
         x[X_SPEED] = 0.0
+    elif index == P_J and w != 0.0:
+        if value > p[P_J]:
+            w_new = p[P_J] * w / value
+            acc[A_COUPLING] += 0.5 * p[P_J] * w * w - 0.5 * value * w_new * w_new
+            x[X_SPEED] = w_new
+        else:
+            acc[A_COUPLING] += 0.5 * (p[P_J] - value) * w * w
     p[index] = value
 
 

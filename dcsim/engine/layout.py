@@ -41,7 +41,8 @@ A_PEAK_I_TIME = 8  # when [s]
 A_BUS_MAX = 9  # highest bus voltage [V]
 A_BUS_MIN = 10  # lowest bus voltage [V]
 A_SPLITS = 11  # number of located regime changes (stick/slip, clipping, diode)
-N_ACC = 12
+A_COUPLING = 12  # kinetic energy lost when load inertia engages, or carried off when released [J]
+N_ACC = 13
 
 # Recorded columns (kernel order)
 R_TIME = 0

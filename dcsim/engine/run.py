@@ -19,7 +19,7 @@ CHUNK_STEPS = 2_000_000
 
 def run_inputs(
     ki: KernelInputs, progress: Callable[[float], None] | None = None
-) -> tuple[int, float, np.ndarray, np.ndarray, np.ndarray]:
+) -> tuple[int, float, np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
     """Run the kernel on assembled inputs.
 
     Parameters
@@ -31,8 +31,9 @@ def run_inputs(
 
     Returns
     -------
-    status, t_stop, rec, acc, final_state
-        Kernel status, time reached [s], trace columns (N_REC, rows), accumulators and state.
+    status, t_stop, rec, acc, final_state, final_params
+        Kernel status, time reached [s], trace columns (N_REC, rows), accumulators, state and
+        parameters (after the events).
     """
     rec = np.zeros((L.N_REC, ki.rows))
     acc = np.zeros(L.N_ACC)
@@ -52,7 +53,7 @@ def run_inputs(
             progress(k_last / ki.n_steps)
         if status != L.STATUS_OK:
             break
-    return int(status), float(t_stop), rec[:, : counters[1]], acc, x
+    return int(status), float(t_stop), rec[:, : counters[1]], acc, x, p
 
 
 def _stop_message(sc: Scenario, ki: KernelInputs, status: int, t_stop: float) -> str:
@@ -78,15 +79,18 @@ def _stop_message(sc: Scenario, ki: KernelInputs, status: int, t_stop: float) ->
     return where + "the state became non-finite; " + cause
 
 
-def energy_account(ki: KernelInputs, acc: np.ndarray, xf: np.ndarray) -> dict[str, float]:
+def energy_account(
+    ki: KernelInputs, acc: np.ndarray, xf: np.ndarray, pf: np.ndarray
+) -> dict[str, float]:
     """Energy terms of a run [J]; ``energy_from_supply_J`` equals the sum of the others.
 
     The kinetic and stored terms come from the initial and final states, the others from the
-    kernel's full-rate integrals, so the residual measures the integration error.
+    kernel's full-rate integrals, so the residual measures the integration error. ``pf``
+    are the parameters at the end (an event may have changed the inertia on the shaft).
     """
     p, x0 = ki.params, ki.state0
     with np.errstate(over="ignore", invalid="ignore"):  # overflow is reported by simulate
-        kinetic = 0.5 * p[L.P_J] * (xf[L.X_SPEED] ** 2 - x0[L.X_SPEED] ** 2)
+        kinetic = 0.5 * (pf[L.P_J] * xf[L.X_SPEED] ** 2 - p[L.P_J] * x0[L.X_SPEED] ** 2)
         stored = 0.5 * p[L.P_L] * (xf[L.X_CURRENT] ** 2 - x0[L.X_CURRENT] ** 2)
         if ki.has_capacitor:
             stored += 0.5 * p[L.P_C] * (xf[L.X_BUS] ** 2 - x0[L.X_BUS] ** 2)
@@ -97,6 +101,7 @@ def energy_account(ki: KernelInputs, acc: np.ndarray, xf: np.ndarray) -> dict[st
         "energy_friction_J": float(acc[L.A_FRICTION]),
         "energy_to_load_J": float(acc[L.A_LOAD]),
         "energy_shaft_lock_J": float(acc[L.A_LOCK]),
+        "energy_coupling_J": float(acc[L.A_COUPLING]),
         "kinetic_energy_change_J": float(kinetic),
         "stored_energy_change_J": float(stored),
     }
@@ -133,7 +138,7 @@ def simulate(
         The run could not go on (the message says when and the likely cause).
     """
     ki = assemble(scenario)
-    status, t_stop, rec, acc, xf = run_inputs(ki, progress)
+    status, t_stop, rec, acc, xf, pf = run_inputs(ki, progress)
     if status != L.STATUS_OK:
         raise SimulationError(_stop_message(scenario, ki, status, t_stop))
     columns = {name: rec[k] for k, name in enumerate(L.RECORD_NAMES)}
@@ -147,7 +152,7 @@ def simulate(
         "peak_bus_voltage_V": float(acc[L.A_BUS_MAX]),
         "min_bus_voltage_V": float(acc[L.A_BUS_MIN]),
     }
-    summary.update(energy_account(ki, acc, xf))
+    summary.update(energy_account(ki, acc, xf, pf))
     bad = sorted(k for k, v in summary.items() if not np.isfinite(v))
     if bad:
         raise SimulationError(

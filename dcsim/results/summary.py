@@ -32,6 +32,7 @@ _ENERGY_LABELS = {
     "energy_friction_J": "friction (viscous + coulomb)",
     "energy_to_load_J": "to the load",
     "energy_shaft_lock_J": "absorbed by the shaft lock",
+    "energy_coupling_J": "lost or carried off by load coupling",
     "kinetic_energy_change_J": "change of kinetic energy",
     "stored_energy_change_J": "change of stored energy (L, C)",
 }

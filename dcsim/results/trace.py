@@ -31,6 +31,7 @@ ENERGY_KEYS: tuple[str, ...] = (
     "energy_friction_J",
     "energy_to_load_J",
     "energy_shaft_lock_J",
+    "energy_coupling_J",
     "kinetic_energy_change_J",
     "stored_energy_change_J",
 )

@@ -98,7 +98,7 @@ KEYS: dict[str, dict[str, KeySpec]] = {
         "coulomb_friction": _q("N*m", "a torque", "0.01 N*m", default=0.0, changeable=True),
     },
     "load": {
-        "inertia": _q("kg*m^2", "a moment of inertia", "0 kg*m^2", default=0.0),
+        "inertia": _q("kg*m^2", "a moment of inertia", "0 kg*m^2", default=0.0, changeable=True),
         "torque": _q("N*m", "a torque", "0.02 N*m", default=0.0, constraint="any", changeable=True),
         "locked": KeySpec(
             None, kind="bool", default=False, noun="true or false", example="false", changeable=True
