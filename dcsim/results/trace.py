@@ -96,7 +96,11 @@ class Summary(Mapping):
 
     @property
     def energy_closure(self) -> float:
-        """``|energy_balance_residual_J|`` over the largest energy term [-]."""
+        """``|energy_balance_residual_J|`` over the largest energy term [-].
+
+        Meaningful when something happens in the run: in a run where every term sits at
+        rounding level (no command, no load) it compares rounding with rounding.
+        """
         terms = [abs(self._values[k]) for k in ENERGY_KEYS if k in self._values]
         largest = max(terms, default=0.0)
         residual = abs(self._values.get("energy_balance_residual_J", 0.0))
