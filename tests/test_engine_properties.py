@@ -36,7 +36,9 @@ drives = st.fixed_dictionaries(
         "Rs": st.one_of(st.just(0.0), _log_uniform(0.01, 1.0)),
         "C": st.one_of(st.just(0.0), _log_uniform(100e-6, 20e-3)),
         "regen": st.booleans(),
-        "cmd": st.floats(-1.2, 1.2),  # command as a fraction of the supply (beyond 1: clips)
+        # command as a fraction of the supply (beyond 1: clips); at least 5 %, so that the run
+        # moves energy and the account's relative closure means something
+        "cmd": st.floats(0.05, 1.2).flatmap(lambda c: st.sampled_from((c, -c))),
         "step_at": st.floats(0.1, 0.9),
         "new_TL": st.floats(-0.2, 0.2),
     }
@@ -83,11 +85,8 @@ def test_random_drives_close_their_energy_account(d):
         return  # refused or stopped with a message: allowed (e.g. regeneration, no capacitor)
     s, tr = res.summary, res.trace
     largest = max(abs(s[k]) for k in s if k.endswith("_J") and "residual" not in k)
-    # Rounding floor: the stored term is a difference of two 0.5 C v^2 of about 0.5 C Vs^2
-    # each, exact only to ~1e-16 of that (a run in which nothing happens has no larger term).
-    floor = 1e-13 * 0.5 * d["C"] * d["Vs"] ** 2
     residual = abs(s["energy_balance_residual_J"])
-    assert residual <= CLOSURE * largest + floor, (residual, largest, d)
+    assert residual <= CLOSURE * largest, (residual, largest, d)
     for name in tr:
         assert np.all(np.isfinite(tr[name])), name
     assert tr["time_s"][-1] == sc.simulation.duration

@@ -104,3 +104,35 @@ def test_non_finite_state_names_no_step_the_user_did_not_set(tmp_path, capsys):
     assert "non-finite" in line or "not finite" in line
     assert "simulation.step" not in line
     assert not (tmp_path / "o" / "trace.csv").exists()  # nothing half-written
+
+
+PLUGGED = """
+[about]
+title = "sorter belt driven backwards by its load while the drive pushes forward"
+[simulation]
+duration = "20 ms"
+[motor]
+resistance = "1 ohm"
+inductance = "10 mH"
+torque_constant = "0.01 N*m/A"
+inertia = "1e-6 kg*m^2"
+[load]
+torque = "-0.125 N*m"
+[supply]
+voltage = "5 V"
+resistance = "1 ohm"
+[control]
+voltage = "-5 V"
+"""
+
+
+def test_bus_that_would_go_negative_stops_with_a_message(tmp_path, capsys):
+    # The load overhauls the shaft forward while the bridge is fully on backwards (plugging):
+    # the armature current reaches (V + K w) / R, more than the 5 A the 1 ohm source can pass
+    # at zero bus voltage -- Kirchhoff's voltage law gives v = V_s - R_s i_s < 0, which the
+    # ideal bridge (no freewheeling diodes) cannot clamp. Source: KVL over the source.
+    path = tmp_path / "plugged.toml"
+    path.write_text(PLUGGED)
+    assert cli.main(["run", str(path), "--out", str(tmp_path / "o")]) == 1
+    line = _one_line(capsys.readouterr().err)
+    assert "below zero" in line and "freewheeling" in line

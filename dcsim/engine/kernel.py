@@ -79,6 +79,7 @@ from dcsim.engine.layout import (
     R_SPEED,
     R_SUPPLY_CURRENT,
     R_TIME,
+    STATUS_BUS_NEGATIVE,
     STATUS_NONFINITE,
     STATUS_OK,
     STATUS_REGEN_NO_PATH,
@@ -231,6 +232,7 @@ def guard(x, p, has_cap, r, fsign):
             g = min(g, head - abs(vc))
         else:
             g = min(g, abs(vc) - head)
+            g = min(g, head)  # the bus of a fully-on bridge must stay positive
     if has_cap and p[P_REGEN] < 0.5:
         if blocked:
             g = min(g, x[X_BUS] - p[P_VS])
@@ -453,6 +455,10 @@ def advance(
     check_regen = (not has_cap) and p[P_REGEN] < 0.5
     while remaining > 1e-13 * h_nom:
         r, fsign = regime_of(x, p, has_cap)
+        if (r // 2) % 3 != BRIDGE_CONTROL:
+            vb, va, ib, isup = bus_state(x, p, has_cap, r)
+            if vb < 0.0 or (vb == 0.0 and ib > 0.0):
+                return STATUS_BUS_NEGATIVE, t
         if check_regen:
             vb, va, ib, isup = bus_state(x, p, has_cap, r)
             if ib < -1e-12 * (1.0 + abs(x[X_CURRENT])):

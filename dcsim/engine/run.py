@@ -64,6 +64,14 @@ def _stop_message(sc: Scenario, ki: KernelInputs, status: int, t_stop: float) ->
             "with no bus capacitance, so the bus voltage would rise without limit; give "
             "supply.capacitance (and a brake resistor), or make the supply regenerative"
         )
+    if status == L.STATUS_BUS_NEGATIVE:
+        return where + (
+            "the bus voltage would go below zero: with the bridge fully on, the current "
+            "through the source resistance (or out of the bus capacitor) exceeds what the "
+            "source gives, as when a driven motor is plugged against a weak supply; the ideal "
+            "bridge has no freewheeling diodes to clamp the bus, so this run cannot go on -- "
+            "lower supply.resistance, add supply.capacitance, or lower the command"
+        )
     fastest = min(ki.time_constants_s.items(), key=lambda kv: kv[1])
     if sc.simulation.step is not None:
         cause = (
