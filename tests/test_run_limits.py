@@ -136,3 +136,36 @@ def test_bus_that_would_go_negative_stops_with_a_message(tmp_path, capsys):
     assert cli.main(["run", str(path), "--out", str(tmp_path / "o")]) == 1
     line = _one_line(capsys.readouterr().err)
     assert "below zero" in line and "freewheeling" in line
+
+
+DROPOUT = """
+[about]
+title = "conveyor: the supply drops out, the armature is shorted through the dead source"
+[simulation]
+duration = "0.4 s"
+[motor]
+resistance = "1.2 ohm"
+inductance = "2 mH"
+torque_constant = "0.05 N*m/A"
+inertia = "1e-4 kg*m^2"
+[supply]
+voltage = "24 V"
+[control]
+voltage = "24 V"
+[[events]]
+at = "0.2 s"
+set = { "supply.voltage" = "0 V" }
+"""
+
+
+def test_supply_dropout_to_an_ideal_zero_volt_source_brakes_and_runs_on():
+    # A 0 V ideal source takes current either way: the fully-on bridge shorts the armature,
+    # which brakes (bus exactly 0 V, not below it). The run must go on, current reversed.
+    # Source: Kirchhoff's voltage law; the piecewise closed form of such events is checked in
+    # test_physics_linear.
+    res = dcsim.simulate(dcsim.load_scenario_text(DROPOUT))
+    tr = res.trace
+    after = tr["time_s"] > 0.2
+    assert (tr["bus_voltage_V"][after] == 0.0).all()
+    assert tr["current_A"][after].min() < 0.0  # generating into the short: braking
+    assert res.summary.energy_closure <= 1e-6  # Source: conservation of energy

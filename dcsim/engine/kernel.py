@@ -232,7 +232,7 @@ def guard(x, p, has_cap, r, fsign):
             g = min(g, head - abs(vc))
         else:
             g = min(g, abs(vc) - head)
-            g = min(g, head)  # the bus of a fully-on bridge must stay positive
+            g = min(g, head)  # the bus of a fully-on bridge must not go below zero
     if has_cap and p[P_REGEN] < 0.5:
         if blocked:
             g = min(g, x[X_BUS] - p[P_VS])
@@ -457,7 +457,7 @@ def advance(
         r, fsign = regime_of(x, p, has_cap)
         if (r // 2) % 3 != BRIDGE_CONTROL:
             vb, va, ib, isup = bus_state(x, p, has_cap, r)
-            if vb < 0.0 or (vb == 0.0 and ib > 0.0):
+            if vb < 0.0:
                 return STATUS_BUS_NEGATIVE, t
         if check_regen:
             vb, va, ib, isup = bus_state(x, p, has_cap, r)
