@@ -50,7 +50,7 @@ MAX_TRACE_BYTES = 2_000_000_000
 
 @dataclass(frozen=True)
 class KernelInputs:
-    """Everything :func:`dcsim.engine.kernel.run_kernel` needs, as plain arrays and numbers."""
+    """Everything the kernel (``start_run``, ``run_steps``) needs, as plain arrays and numbers."""
 
     params: np.ndarray
     state0: np.ndarray

@@ -26,30 +26,6 @@ from dcsim.engine.layout import X_BUS, X_CURRENT, X_SPEED
 
 
 @njit(cache=True, error_model="numpy")
-def armature_current_rate(
-    v_arm_V: float, current_A: float, speed_rad_s: float, r_ohm: float, l_H: float, k: float
-) -> float:
-    """Rate of change of armature current, ``(v - R i - K w) / L`` [A/s] [1]_.
-
-    Parameters
-    ----------
-    v_arm_V : float
-        Armature terminal voltage [V].
-    current_A : float
-        Armature current [A].
-    speed_rad_s : float
-        Shaft speed [rad/s].
-    r_ohm : float
-        Armature resistance [ohm].
-    l_H : float
-        Armature inductance [H].
-    k : float
-        Torque / back-EMF constant [N*m/A].
-    """
-    return (v_arm_V - r_ohm * current_A - k * speed_rad_s) / l_H
-
-
-@njit(cache=True, error_model="numpy")
 def fill_armature_row(
     a: np.ndarray,
     b: np.ndarray,
