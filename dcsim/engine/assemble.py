@@ -233,3 +233,291 @@ def assemble(sc: Scenario) -> KernelInputs:
         rows=rows,
         time_constants_s=taus,
     )
+
+
+# --------------------------------------------------------------------------------------------
+# Averaged and switching bridge models (dcsim.engine.bridge_kernel)
+# --------------------------------------------------------------------------------------------
+
+MIN_GRID_PER_PERIOD = 8
+"""Nominal steps per PWM period at least (trace rows that show the ripple)."""
+DEFAULT_ROWS_SWITCHING = 200_000
+
+
+@dataclass(frozen=True)
+class BridgeInputs:
+    """Everything :func:`dcsim.engine.bridge_kernel.run_periods` needs."""
+
+    params: np.ndarray
+    state0: np.ndarray
+    modes0: np.ndarray
+    period_s: float
+    n_grid: int
+    n_periods: int
+    steps_per_row: int
+    step_s: float
+    record_interval_s: float
+    duration_s: float
+    event_time_s: np.ndarray
+    event_index: np.ndarray
+    event_value: np.ndarray
+    ocv_soc: np.ndarray
+    ocv_V: np.ndarray
+    rows: int
+    time_constants_s: dict
+    switching: bool
+    fuse_model: object | None
+
+
+def bridge_parameters(sc: Scenario):
+    """Parameter vector [SI] of the bridge kernel at t = 0 and the fuse model (or None)."""
+    from dcsim.engine import bridge_layout as B
+
+    q = np.zeros(B.N_Q)
+    m, ld, s, c, br = sc.motor, sc.load, sc.supply, sc.control, sc.bridge
+    q[B.Q_R] = m.resistance
+    q[B.Q_L] = m.inductance
+    q[B.Q_K] = m.torque_constant
+    q[B.Q_J] = m.inertia + ld.inertia
+    q[B.Q_B] = m.viscous_friction
+    q[B.Q_TC] = m.coulomb_friction
+    q[B.Q_TL] = ld.torque
+    q[B.Q_LOCK] = 1.0 if ld.locked else 0.0
+    bat = sc.battery
+    q[B.Q_RS] = s.resistance + (bat.resistance if bat is not None else 0.0)
+    q[B.Q_LS] = s.inductance
+    q[B.Q_C] = s.capacitance
+    q[B.Q_ESR] = s.esr
+    q[B.Q_REGEN] = 1.0 if s.regenerative else 0.0
+    if bat is not None:
+        q[B.Q_BAT] = 1.0
+        q[B.Q_BAT_Q] = bat.capacity
+    q[B.Q_RON] = br.on_resistance
+    q[B.Q_VD] = br.diode_drop
+    q[B.Q_TD] = br.dead_time
+    q[B.Q_FS] = br.frequency
+    q[B.Q_UNIPOLAR] = 1.0 if br.pwm == "unipolar" else 0.0
+    q[B.Q_EDGE] = 1.0 if br.alignment == "edge" else 0.0
+    q[B.Q_COUNTS] = br.duty_counts
+    q[B.Q_MINPULSE] = br.min_pulse
+    q[B.Q_SWITCHING] = 1.0 if br.model == "switching" else 0.0
+    q[B.Q_VCMD] = c.voltage
+    q[B.Q_VNOM] = s.voltage
+    q[B.Q_ESW] = br.switching_energy
+    q[B.Q_ESW_V] = br.switching_energy_voltage
+    q[B.Q_ESW_I] = br.switching_energy_current
+    q[B.Q_IPK] = br.peak_current_limit
+    q[B.Q_BLANK] = br.blanking_time
+    if sc.brake is not None:
+        q[B.Q_BRAKE_R] = sc.brake.resistance
+        q[B.Q_BRAKE_ON] = sc.brake.on_voltage
+        q[B.Q_BRAKE_OFF] = sc.brake.off_voltage
+    if sc.protection is not None:
+        q[B.Q_OV] = sc.protection.over_voltage
+        q[B.Q_UV] = sc.protection.under_voltage
+        q[B.Q_AUTO_RESTART] = 1.0 if sc.protection.restart == "auto" else 0.0
+        q[B.Q_RESTART_DELAY] = sc.protection.restart_delay
+        q[B.Q_RESTART_MARGIN] = sc.protection.restart_margin
+    q[B.Q_PRE_V] = math.inf
+    if sc.precharge is not None:
+        q[B.Q_PRE_R] = sc.precharge.resistance
+        if sc.precharge.bypass_voltage is not None:
+            q[B.Q_PRE_V] = sc.precharge.bypass_voltage
+    fuse = None
+    if sc.fuse is not None:
+        from dcsim.power.fuse import fuse_model_from_keys
+
+        f = sc.fuse
+        table = None
+        if f.table is not None:
+            table = ([p[0] for p in f.table_points], [p[1] for p in f.table_points])
+        fuse = fuse_model_from_keys(
+            f.rated_current,
+            melting_i2t_A2s=f.melting_i2t,
+            min_melting_current_A=f.min_melting_current,
+            table=table,
+            fuse_class=f.generic_class,
+            source=sc.source,
+        )
+        q[B.Q_FUSE] = 1.0
+        q[B.Q_FUSE_IMIN] = fuse.min_melting_current_A
+        q[B.Q_FUSE_TAU] = fuse.tau_s
+    return q, fuse
+
+
+def bridge_time_constants(sc: Scenario, q: np.ndarray) -> dict[str, float]:
+    """Time constants of the drive with its bus circuit [s] (see :func:`time_constants`)."""
+    from dcsim.engine import bridge_layout as B
+
+    p = parameter_vector(sc)
+    p[L.P_RS] = q[B.Q_RS]
+    taus = time_constants(p)
+    c = q[B.Q_C]
+    if q[B.Q_LS] > 0.0:
+        if q[B.Q_RS] > 0.0:
+            taus["source_lr"] = q[B.Q_LS] / q[B.Q_RS]
+        taus["source_lc_resonance"] = math.sqrt(q[B.Q_LS] * c)
+    if q[B.Q_ESR] > 0.0:
+        taus["capacitor_esr"] = q[B.Q_ESR] * c
+    if q[B.Q_BRAKE_R] > 0.0:
+        taus["brake_rc"] = q[B.Q_BRAKE_R] * c
+    if q[B.Q_PRE_R] > 0.0:
+        taus["precharge_rc"] = (q[B.Q_PRE_R] + q[B.Q_RS]) * c
+    if q[B.Q_FUSE] > 0.0:
+        taus["fuse_heating"] = q[B.Q_FUSE_TAU]
+    # with the on-resistance in the loop the electrical time constant is shorter
+    r_loop = q[B.Q_R] + 2.0 * q[B.Q_RON]
+    taus["electrical"] = min(taus["electrical"], q[B.Q_L] / r_loop)
+    return taus
+
+
+def assemble_bridge(sc: Scenario) -> BridgeInputs:
+    """Kernel inputs of the averaged and switching bridge models.
+
+    The averaged model advances in nominal steps (a tenth of the fastest time constant); the
+    switching model period by period, each PWM period cut into at least
+    :data:`MIN_GRID_PER_PERIOD` nominal steps and, between them, at every switching instant.
+    """
+    from dcsim.engine import bridge_layout as B
+
+    q, fuse = bridge_parameters(sc)
+    duration = sc.simulation.duration
+    taus = bridge_time_constants(sc, q)
+    param_of_key = {
+        "motor.resistance": B.Q_R,
+        "motor.torque_constant": B.Q_K,
+        "motor.viscous_friction": B.Q_B,
+        "motor.coulomb_friction": B.Q_TC,
+        "load.torque": B.Q_TL,
+        "load.inertia": B.Q_J,
+        "load.locked": B.Q_LOCK,
+        "supply.voltage": B.EV_SOURCE_VOLTAGE,
+        "supply.resistance": B.Q_RS,
+        "supply.regenerative": B.Q_REGEN,
+        "control.voltage": B.Q_VCMD,
+    }
+    events: list[tuple[float, int, int, float]] = []  # (time, order, index, value)
+    for ev in sc.events:
+        for key, value in ev.changes:
+            v = float(value)
+            if key == "load.inertia":
+                v += sc.motor.inertia
+            if key == "supply.resistance" and sc.battery is not None:
+                v += sc.battery.resistance
+            if key == "motor.resistance":
+                taus["electrical"] = min(taus["electrical"], sc.motor.inductance / v)
+            events.append((ev.at, len(events), param_of_key[key], v))
+    prof = sc.supply_profile
+    if prof is not None:
+        ts, vs = prof.times_s, prof.voltages_V
+        for k in range(len(ts)):
+            t_abs = prof.start + ts[k]
+            if t_abs > duration:
+                break
+            slope = 0.0
+            if k + 1 < len(ts) and ts[k + 1] > ts[k]:
+                slope = (vs[k + 1] - vs[k]) / (ts[k + 1] - ts[k])
+            events.append((t_abs, len(events), B.EV_SOURCE_RAMP, vs[k]))
+            events.append((t_abs, len(events), B.Q_SLOPE, slope))
+    if sc.precharge is not None and sc.precharge.bypass_time is not None:
+        if sc.precharge.bypass_time <= duration:
+            events.append((sc.precharge.bypass_time, len(events), B.EV_BYPASS, 0.0))
+    events.sort(key=lambda e: (e[0], e[1]))
+
+    fastest = min(taus.values())
+    switching = sc.bridge.model == "switching"
+    user_step = sc.simulation.step
+    if user_step is not None and user_step > fastest * MAX_USER_STEP_FRACTION:
+        fastest_name = min(taus, key=taus.get)
+        raise ScenarioError(
+            f"expected a step of at most {fastest * MAX_USER_STEP_FRACTION:.3g} s (a quarter "
+            f"of the fastest time constant, {fastest_name} = {fastest:.3g} s), found "
+            f"{user_step:.3g} s; remove simulation.step to let dcsim choose",
+            source=sc.source,
+            key="simulation.step",
+        )
+    h_target = user_step if user_step is not None else fastest / STEPS_PER_TIME_CONSTANT
+    record = sc.simulation.record_interval
+    if switching:
+        period = 1.0 / sc.bridge.frequency
+        n_grid = max(MIN_GRID_PER_PERIOD, math.ceil(period / h_target - 1e-9))
+        if record is not None and record < period / n_grid:
+            n_grid = math.ceil(period / record - 1e-9)
+        h = period / n_grid
+    else:
+        h = h_target
+        if record is not None and record < h:
+            h = record
+        period = h
+        n_grid = 1
+    if record is None:
+        rows_wanted = DEFAULT_ROWS_SWITCHING if switching else DEFAULT_ROWS
+        record = max(h, duration / rows_wanted)
+    n_sub = max(1, round(record / h))
+    if not switching and sc.simulation.record_interval is not None:
+        # the averaged model's step divides the record interval exactly
+        n_sub = max(1, math.ceil(record / h_target - 1e-9))
+        h = record / n_sub
+        period = h
+    record = n_sub * h
+    if not switching:
+        n_grid = n_sub  # a kernel "period" of the averaged model is one trace row
+        period = record
+    n_periods = max(1, math.ceil(duration / period - 1e-9))
+    total_steps = n_periods * n_grid
+    if total_steps > MAX_STEPS:
+        raise ScenarioError(
+            f"expected at most {MAX_STEPS:.0e} steps, found {total_steps:.3g} (step {h:.3g} s "
+            f"over {duration:.3g} s): shorten simulation.duration",
+            source=sc.source,
+            key="simulation.step",
+        )
+    rows = total_steps // n_sub + 3
+    if rows * B.N_REC * 8 > MAX_TRACE_BYTES:
+        raise ScenarioError(
+            f"expected at most {MAX_TRACE_BYTES // (B.N_REC * 8):.3g} trace rows, found "
+            f"{rows:.3g} ({duration:.3g} s recorded every {record:.3g} s): set a longer "
+            "simulation.record_interval or a shorter duration",
+            source=sc.source,
+            key="simulation.record_interval",
+        )
+
+    x0 = np.zeros(B.N_A)
+    x0[B.S_ONE] = 1.0
+    x0[B.S_VS] = sc.supply.voltage
+    if sc.supply.initial_bus_voltage is not None:
+        x0[B.S_VC] = sc.supply.initial_bus_voltage
+    elif sc.precharge is None:
+        x0[B.S_VC] = sc.supply.voltage
+    if sc.battery is not None:
+        x0[B.S_SOC] = sc.battery.initial_state_of_charge
+        pts = sc.battery.open_circuit_voltage
+        ocv_soc = np.array([p[0] for p in pts])
+        ocv_v = np.array([p[1] for p in pts])
+    else:
+        ocv_soc = np.zeros(2)
+        ocv_v = np.zeros(2)
+    md0 = np.zeros(B.N_M, dtype=np.int64)
+    md0[B.M_SIGMA] = 1
+    md0[B.M_PRE] = 1 if sc.precharge is not None else 0
+    return BridgeInputs(
+        params=q,
+        state0=x0,
+        modes0=md0,
+        period_s=period,
+        n_grid=n_grid,
+        n_periods=n_periods,
+        steps_per_row=n_sub,
+        step_s=h,
+        record_interval_s=record,
+        duration_s=duration,
+        event_time_s=np.array([e[0] for e in events], dtype=np.float64),
+        event_index=np.array([e[2] for e in events], dtype=np.int64),
+        event_value=np.array([e[3] for e in events], dtype=np.float64),
+        ocv_soc=ocv_soc,
+        ocv_V=ocv_v,
+        rows=rows,
+        time_constants_s=taus,
+        switching=switching,
+        fuse_model=fuse,
+    )

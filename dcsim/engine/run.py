@@ -145,6 +145,8 @@ def simulate(
     SimulationError
         The run could not go on (the message says when and the likely cause).
     """
+    if scenario.bridge.model != "ideal":
+        return _simulate_bridge(scenario, progress)
     ki = assemble(scenario)
     status, t_stop, rec, acc, xf, pf = run_inputs(ki, progress)
     if status != L.STATUS_OK:
@@ -183,4 +185,28 @@ def simulate(
         step_s=ki.step_s,
         record_interval_s=ki.record_interval_s,
         event_times_s=tuple(sorted({float(t) for t in ki.event_time_s})),
+    )
+
+
+def _simulate_bridge(
+    scenario: Scenario, progress: Callable[[float], None] | None
+) -> SimulationResult:
+    """:func:`simulate` for the averaged and switching bridge models."""
+    from dcsim.engine import bridge_layout as B
+    from dcsim.engine.assemble import assemble_bridge
+    from dcsim.engine.run_bridge import bridge_summary, run_bridge_inputs, stop_message
+
+    bi = assemble_bridge(scenario)
+    status, t_stop, rec, acc, xf, qf, trips = run_bridge_inputs(bi, progress)
+    if status != B.STATUS_OK:
+        raise SimulationError(stop_message(scenario.source, status, t_stop))
+    columns = {name: rec[k] for k, name in enumerate(B.RECORD_NAMES)}
+    summary = bridge_summary(scenario, bi, acc, xf, qf, trips)
+    return SimulationResult(
+        scenario=scenario,
+        trace=Trace(columns),
+        summary=Summary(summary),
+        step_s=bi.step_s,
+        record_interval_s=bi.record_interval_s,
+        event_times_s=tuple(sorted({float(t) for t in bi.event_time_s})),
     )

@@ -38,17 +38,26 @@ else:  # pragma: no cover - Python 3.10
 from dcsim.errors import ScenarioError
 from dcsim.scenario.schema import (
     KEYS,
+    OPTIONAL_TABLES,
+    POWER_STAGE_TABLES,
     REQUIRED,
     REQUIRED_TABLES,
     About,
+    Battery,
+    Brake,
+    Bridge,
     Control,
     Event,
+    Fuse,
     KeySpec,
     Load,
     Motor,
+    Precharge,
+    Protection,
     Scenario,
     Simulation,
     Supply,
+    SupplyProfile,
     changeable_keys,
 )
 from dcsim.units import UnitError, describe_value, to_si
@@ -62,6 +71,13 @@ _TABLE_TYPES: dict[str, type] = {
     "supply": Supply,
     "control": Control,
     "about": About,
+    "bridge": Bridge,
+    "brake": Brake,
+    "protection": Protection,
+    "precharge": Precharge,
+    "battery": Battery,
+    "fuse": Fuse,
+    "supply_profile": SupplyProfile,
 }
 """Dataclass of each table; its fields are the table's keys in :data:`KEYS`."""
 
@@ -69,7 +85,6 @@ _EVENTS = "events"
 _EVENT_FIELDS = ("at", "set")
 
 _PLANNED_KEYS: dict[str, str] = {
-    "fuse": "the supply fuse",
     "control.current": "the current loop",
     "control.speed": "the speed loop",
     "control.position": "the position loop",
@@ -197,9 +212,12 @@ def apply_changes(scenario: Scenario, changes: Mapping[str, Any]) -> Scenario:
             source=source,
         )
     # The scenario's own values are checked again too: it may have been built in code.
-    read = _Read(tables=set(KEYS))
+    present = {t for t in KEYS if getattr(scenario, t) is not None}
+    read = _Read(tables=present)
     for name in _all_keys():
         table, _, key = name.partition(".")
+        if table not in present:
+            continue
         value = getattr(getattr(scenario, table), key)
         read.values[name] = _convert(name, _spec(name), value, key=name, source=source)
     read.events = [_recheck_event(i, ev, source) for i, ev in enumerate(scenario.events)]
@@ -217,11 +235,15 @@ def apply_changes(scenario: Scenario, changes: Mapping[str, Any]) -> Scenario:
             raise _unknown_key(name, source=source, key=name)
         changed[name] = _convert(name, spec, value, key=name, source=source)
         read.shown[name] = describe_value(value)
+        read.tables.add(name.partition(".")[0])
     read.values.update(changed)
     # Keys count as written when changed now or when they differ from their default.
     read.given = set(changed) | {
         name for name, value in read.values.items() if value != _spec(name).default
     }
+    if scenario.battery is not None and "supply.voltage" not in changed:
+        read.values.pop("supply.voltage", None)  # follows the battery
+        read.given.discard("supply.voltage")
     return _assemble(read, source, result_source=scenario.source)
 
 
@@ -504,7 +526,11 @@ def _convert(name: str, spec: KeySpec, value: Any, *, key: str, source: str) -> 
             source=source,
             key=key,
         )
+    if spec.kind == "pairs":
+        return _convert_pairs(spec, value, key=key, source=source)
     if spec.kind == "text":
+        if value is None and spec.default is None:
+            return None
         if isinstance(value, str):
             return value
         raise ScenarioError(
@@ -514,6 +540,37 @@ def _convert(name: str, spec: KeySpec, value: Any, *, key: str, source: str) -> 
             key=key,
         )
     raise TypeError(f"schema error: key {key!r} has unknown kind {spec.kind!r}")
+
+
+def _convert_pairs(spec: KeySpec, value: Any, *, key: str, source: str) -> Any:
+    """A list of ``[a, b]`` pairs, each member converted to SI; returned as a tuple of tuples."""
+    if value is None:
+        return None
+    if not isinstance(value, list | tuple) or len(value) < 2:
+        raise ScenarioError(
+            f"expected {spec.noun} of at least two points, e.g. {spec.example}, found "
+            f"{describe_value(value, with_kind=True)}",
+            source=source,
+            key=key,
+        )
+    out = []
+    for n, pair in enumerate(value):
+        if not isinstance(pair, list | tuple) or len(pair) != 2:
+            raise ScenarioError(
+                f"expected point {n} of {spec.noun} as a pair [a, b], e.g. {spec.example}, "
+                f"found {describe_value(pair, with_kind=True)}",
+                source=source,
+                key=key,
+            )
+        members = []
+        for unit, item in ((spec.unit, pair[0]), (spec.unit2, pair[1])):
+            noun = "a number" if not unit else f"a quantity in {unit}"
+            try:
+                members.append(to_si(item, unit or "", noun=noun, example=spec.example))
+            except UnitError as err:
+                raise ScenarioError(f"point {n}: {err.detail}", source=source, key=key) from None
+        out.append((members[0] + 0.0, members[1] + 0.0))
+    return tuple(out)
 
 
 def _check_sign(spec: KeySpec, si: float, value: Any, *, key: str, source: str) -> float:
@@ -638,7 +695,8 @@ _Rule = Callable[[dict[str, Any], set[str], _Show], _Problem]
 
 def _rule_bus_needs_resistance(state: dict[str, Any], given: set[str], show: _Show) -> _Problem:
     """A bus capacitor is charged by the source through the source resistance."""
-    if state["supply.capacitance"] > 0 and not state["supply.resistance"] > 0:
+    damped = state.get("supply.inductance", 0.0) > 0 or state.get("battery.resistance", 0.0) > 0
+    if state["supply.capacitance"] > 0 and not state["supply.resistance"] > 0 and not damped:
         return (
             "supply.resistance",
             "expected a resistance greater than 0 when supply.capacitance is "
@@ -687,7 +745,11 @@ def _assemble(read: _Read, source: str, *, result_source: str) -> Scenario:
     for table in REQUIRED_TABLES:
         if table not in read.tables:
             raise _missing_table(table, source)
+    if "battery" in read.tables:
+        _battery_sets_supply_voltage(values, read, source)
     for table, specs in KEYS.items():
+        if table in OPTIONAL_TABLES and table not in read.tables:
+            continue
         for key, spec in specs.items():
             name = f"{table}.{key}"
             if name in values:
@@ -708,7 +770,9 @@ def _assemble(read: _Read, source: str, *, result_source: str) -> Scenario:
             return read.shown[name]
         return _show_si(name, values[name], given=name in read.given)
 
-    problem = _first_problem(values, read.given, show)
+    present = {t for t in OPTIONAL_TABLES if t in read.tables}
+    problem = _power_stage_problem(values, present, read.given, show)
+    problem = problem or _first_problem(values, read.given, show)
     if problem is not None:
         raise ScenarioError(problem[1], source=source, key=problem[0])
 
@@ -721,18 +785,244 @@ def _assemble(read: _Read, source: str, *, result_source: str) -> Scenario:
                 source=source,
                 key=f"{_EVENTS}[{event.index}].at",
             )
+        for name, _ in event.changes:
+            if name == "supply.voltage" and present & {"battery", "supply_profile"}:
+                part = "battery" if "battery" in present else "supply_profile"
+                raise ScenarioError(
+                    f"expected no event on supply.voltage when the scenario has a [{part}] "
+                    f"table (it sets the source voltage), found one at {event.at_shown}",
+                    source=source,
+                    key=f"{_EVENTS}[{event.index}].set.supply.voltage",
+                )
     ordered = sorted(read.events, key=lambda e: e.at)  # stable: file order at equal times
     _check_events(values, ordered, source)
 
-    tables = {
-        table: cls(**{key: values[f"{table}.{key}"] for key in KEYS[table]})
-        for table, cls in _TABLE_TYPES.items()
-    }
+    tables: dict[str, Any] = {}
+    for table, cls in _TABLE_TYPES.items():
+        if table in OPTIONAL_TABLES and table not in present:
+            tables[table] = None
+            continue
+        tables[table] = cls(**{key: values[f"{table}.{key}"] for key in KEYS[table]})
+    _resolve_files(tables, source)
     return Scenario(
         **tables,
         events=tuple(Event(at=e.at, changes=e.changes) for e in ordered),
         source=result_source,
     )
+
+
+def _battery_sets_supply_voltage(values: dict[str, Any], read: _Read, source: str) -> None:
+    """With a [battery], the source voltage at t = 0 is its open-circuit voltage."""
+    if "supply.voltage" in values and "supply.voltage" in read.given:
+        raise ScenarioError(
+            "expected no supply.voltage with a [battery] table (the battery's open-circuit "
+            f"voltage is the source voltage), found {read.shown.get('supply.voltage', '')}",
+            source=source,
+            key="supply.voltage",
+        )
+    table = values.get("battery.open_circuit_voltage")
+    if table is None:
+        return  # reported as a missing key below
+    _check_ocv_table(table, source)
+    soc = values.get("battery.initial_state_of_charge", 1.0)
+    if not 0.0 <= soc <= 1.0:
+        raise ScenarioError(
+            f"expected a state of charge from 0 to 1, found {soc:g}",
+            source=source,
+            key="battery.initial_state_of_charge",
+        )
+    values["supply.voltage"] = Battery(open_circuit_voltage=table, capacity=1.0).ocv_at(soc)
+
+
+def _check_ocv_table(table: tuple[tuple[float, float], ...], source: str) -> None:
+    key = "battery.open_circuit_voltage"
+    for n, (soc, volts) in enumerate(table):
+        if not 0.0 <= soc <= 1.0:
+            raise ScenarioError(
+                f"expected states of charge from 0 to 1, found {soc:g} at point {n}",
+                source=source,
+                key=key,
+            )
+        if not volts > 0.0:
+            raise ScenarioError(
+                f"expected open-circuit voltages above 0 V, found {volts:g} V at point {n}",
+                source=source,
+                key=key,
+            )
+        if n > 0 and not soc > table[n - 1][0]:
+            raise ScenarioError(
+                f"expected the state of charge to rise from point to point, found {soc:g} "
+                f"after {table[n - 1][0]:g} at point {n}",
+                source=source,
+                key=key,
+            )
+
+
+def _power_stage_problem(
+    state: dict[str, Any], present: set[str], given: set[str], show: _Show
+) -> _Problem:
+    """Rules of the power-stage parts (checked once, on the initial values)."""
+    model = state["bridge.model"]
+    if model == "ideal":
+        extra = [f"[{t}]" for t in POWER_STAGE_TABLES if t in present]
+        extra += [
+            k
+            for k in ("supply.inductance", "supply.esr", "supply.initial_bus_voltage")
+            if state[k] not in (None, 0.0)
+        ]
+        extra += [f"bridge.{k}" for k in KEYS["bridge"] if k != "model" and f"bridge.{k}" in given]
+        if extra:
+            key = extra[0].strip("[]")
+            return (
+                key,
+                f"expected bridge.model = 'averaged' or 'switching' for {', '.join(extra)} "
+                "(the ideal bridge has no PWM, diodes or bus circuit to simulate them), "
+                f"found bridge.model {show('bridge.model')}",
+            )
+        return None
+    if not state["supply.capacitance"] > 0.0:
+        return (
+            "supply.capacitance",
+            f"expected a bus capacitance greater than 0 with bridge.model '{model}' (every PWM "
+            f"bridge needs a bus capacitor), found {show('supply.capacitance')}",
+        )
+    period = 1.0 / state["bridge.frequency"]
+    td = state["bridge.dead_time"]
+    if 2.0 * td >= period:
+        return (
+            "bridge.dead_time",
+            f"expected a dead time shorter than half the PWM period ({period / 2:.3g} s), "
+            f"found {show('bridge.dead_time')}",
+        )
+    if state["bridge.min_pulse"] * 2.0 >= period:
+        return (
+            "bridge.min_pulse",
+            f"expected a minimum pulse shorter than half the PWM period ({period / 2:.3g} s), "
+            f"found {show('bridge.min_pulse')}",
+        )
+    counts = state["bridge.duty_counts"]
+    if counts != round(counts):
+        return (
+            "bridge.duty_counts",
+            f"expected a whole number of timer counts, found {show('bridge.duty_counts')}",
+        )
+    if state["bridge.peak_current_limit"] > 0.0 and model != "switching":
+        return (
+            "bridge.peak_current_limit",
+            "expected bridge.model = 'switching' for a cycle-by-cycle current limit (the "
+            "averaged model has no pulses to end), found bridge.model "
+            f"{show('bridge.model')}",
+        )
+    if "brake" in present and not state["brake.off_voltage"] < state["brake.on_voltage"]:
+        return (
+            "brake.off_voltage",
+            f"expected a switch-off voltage below brake.on_voltage ({show('brake.on_voltage')}"
+            f"), found {show('brake.off_voltage')}",
+        )
+    if "protection" in present:
+        ov, uv = state["protection.over_voltage"], state["protection.under_voltage"]
+        if ov == 0.0 and uv == 0.0:
+            return (
+                "protection.over_voltage",
+                "expected over_voltage or under_voltage (or both) in [protection], found neither",
+            )
+        if ov > 0.0 and uv > 0.0 and not uv < ov:
+            return (
+                "protection.under_voltage",
+                f"expected an under-voltage level below protection.over_voltage "
+                f"({show('protection.over_voltage')}), found {show('protection.under_voltage')}",
+            )
+    if "precharge" in present:
+        if state["precharge.bypass_time"] is None and state["precharge.bypass_voltage"] is None:
+            return (
+                "precharge.bypass_time",
+                "expected bypass_time or bypass_voltage (or both) in [precharge], found neither",
+            )
+    if "supply_profile" in present:
+        given_forms = [
+            k for k in ("standard", "points", "file") if state[f"supply_profile.{k}"] is not None
+        ]
+        if len(given_forms) != 1:
+            return (
+                "supply_profile",
+                "expected exactly one of standard, points or file in [supply_profile], found "
+                + (", ".join(given_forms) if given_forms else "none"),
+            )
+        if "battery" in present:
+            return (
+                "supply_profile",
+                "expected either a [battery] or a [supply_profile], found both (a battery's "
+                "voltage follows its state of charge)",
+            )
+    if "battery" in present and state["battery.initial_state_of_charge"] > 1.0:
+        return (
+            "battery.initial_state_of_charge",
+            f"expected a state of charge from 0 to 1, found "
+            f"{show('battery.initial_state_of_charge')}",
+        )
+    return None
+
+
+def _relative_to(source: str, name: str) -> Path:
+    path = Path(name)
+    if not path.is_absolute() and not source.startswith("<"):
+        path = Path(source).parent / path
+    return path
+
+
+def _resolve_files(tables: dict[str, Any], source: str) -> None:
+    """Read the CSV files a scenario names and resolve the supply profile (in place)."""
+    import dataclasses
+
+    fuse = tables.get("fuse")
+    if fuse is not None:
+        from dcsim.power import fuse as fuse_model
+
+        points = fuse.table_points
+        if fuse.table is not None and not points:
+            currents, times = fuse_model.read_time_current_csv(
+                _relative_to(source, fuse.table), source=source, key="fuse.table"
+            )
+            points = tuple((float(a), float(b)) for a, b in zip(currents, times, strict=True))
+            fuse = dataclasses.replace(fuse, table_points=points)
+        fuse_model.fuse_model_from_keys(
+            fuse.rated_current,
+            melting_i2t_A2s=fuse.melting_i2t,
+            min_melting_current_A=fuse.min_melting_current,
+            table=(
+                (
+                    [p[0] for p in fuse.table_points],
+                    [p[1] for p in fuse.table_points],
+                )
+                if fuse.table is not None
+                else None
+            ),
+            fuse_class=fuse.generic_class,
+            source=source,
+        )
+        tables["fuse"] = fuse
+    prof = tables.get("supply_profile")
+    if prof is not None and not prof.times_s:
+        from dcsim.power import profiles
+
+        key = "supply_profile"
+        if prof.standard is not None:
+            resolved = profiles.standard_profile(
+                prof.standard, tables["supply"].voltage, source=source, key=f"{key}.standard"
+            )
+        elif prof.points is not None:
+            resolved = profiles.profile_from_points(prof.points, source=source, key=f"{key}.points")
+        else:
+            resolved = profiles.read_profile_csv(
+                _relative_to(source, prof.file), source=source, key=f"{key}.file"
+            )
+        notes = "; ".join(x for x in (resolved.source, resolved.notes) if x)
+        tables["supply_profile"] = dataclasses.replace(
+            prof,
+            times_s=tuple(float(t) for t in resolved.times_s),
+            voltages_V=tuple(float(v) for v in resolved.voltages_V),
+            notes=notes,
+        )
 
 
 def _check_events(values: dict[str, Any], ordered: list[_ReadEvent], source: str) -> None:

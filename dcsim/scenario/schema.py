@@ -30,7 +30,9 @@ class KeySpec:
     unit : str or None
         pint unit the value is converted to (its SI unit); ``None`` for non-quantities.
     kind : str
-        ``"quantity"`` (number or unit string), ``"bool"``, ``"choice"`` or ``"text"``.
+        ``"quantity"`` (number or unit string), ``"bool"``, ``"choice"``, ``"text"`` or
+        ``"pairs"`` (a list of two-element lists, the first in ``unit``, the second in
+        ``unit2``, e.g. times and voltages).
     default : object
         Default value in SI, or :data:`REQUIRED`.
     constraint : str
@@ -44,6 +46,8 @@ class KeySpec:
     changeable : bool
         Whether ``[[events]]`` may change the key during a run. Keys whose change would make
         stored energy jump (inductance, inertia, capacitance) are not changeable.
+    unit2 : str or None
+        Unit of the second member of each pair (``kind == "pairs"``).
     """
 
     unit: str | None
@@ -54,6 +58,21 @@ class KeySpec:
     example: str = "1"
     choices: tuple[str, ...] = ()
     changeable: bool = False
+    unit2: str | None = None
+
+
+def _choice(default, noun, choices):
+    return KeySpec(
+        None, kind="choice", default=default, noun=noun, example=default, choices=choices
+    )
+
+
+def _text(noun, example):
+    return KeySpec(None, kind="text", default=None, noun=noun, example=example)
+
+
+def _pairs(unit, unit2, noun, example):
+    return KeySpec(unit, kind="pairs", default=None, noun=noun, example=example, unit2=unit2)
 
 
 def _q(unit, noun, example, default=REQUIRED, constraint="nonnegative", changeable=False):
@@ -111,6 +130,72 @@ KEYS: dict[str, dict[str, KeySpec]] = {
         "regenerative": KeySpec(
             None, kind="bool", default=True, noun="true or false", example="true", changeable=True
         ),
+        "inductance": _q("H", "an inductance", "10 uH", default=0.0),
+        "esr": _q("ohm", "a resistance", "20 mohm", default=0.0),
+        "initial_bus_voltage": _q("V", "a voltage", "0 V", default=None),
+    },
+    "bridge": {
+        "model": _choice("ideal", "a bridge model", ("ideal", "averaged", "switching")),
+        "pwm": _choice("unipolar", "a PWM scheme", ("unipolar", "bipolar")),
+        "frequency": _q("Hz", "a frequency", "20 kHz", default=20e3, constraint="positive"),
+        "alignment": _choice("centre", "a carrier alignment", ("centre", "edge")),
+        "duty_counts": _q("", "a number of timer counts", "1000", default=0.0),
+        "min_pulse": _q("s", "a time", "200 ns", default=0.0),
+        "dead_time": _q("s", "a time", "500 ns", default=0.0),
+        "on_resistance": _q("ohm", "a resistance", "10 mohm", default=0.0),
+        "diode_drop": _q("V", "a voltage", "0.8 V", default=0.0),
+        "switching_energy": _q("J", "an energy", "20 uJ", default=0.0),
+        "switching_energy_voltage": _q("V", "a voltage", "24 V", default=0.0),
+        "switching_energy_current": _q("A", "a current", "10 A", default=0.0),
+        "peak_current_limit": _q("A", "a current", "15 A", default=0.0),
+        "blanking_time": _q("s", "a time", "1 us", default=0.0),
+    },
+    "brake": {
+        "resistance": _q("ohm", "a resistance", "10 ohm", constraint="positive"),
+        "on_voltage": _q("V", "a voltage", "30 V", constraint="positive"),
+        "off_voltage": _q("V", "a voltage", "28 V", constraint="positive"),
+    },
+    "protection": {
+        "over_voltage": _q("V", "a voltage", "34 V", default=0.0),
+        "under_voltage": _q("V", "a voltage", "9 V", default=0.0),
+        "restart": _choice("latch", "a restart rule", ("latch", "auto")),
+        "restart_delay": _q("s", "a time", "100 ms", default=0.1),
+        "restart_margin": _q("V", "a voltage", "1 V", default=0.0),
+    },
+    "precharge": {
+        "resistance": _q("ohm", "a resistance", "47 ohm", constraint="positive"),
+        "bypass_time": _q("s", "a time", "200 ms", default=None),
+        "bypass_voltage": _q("V", "a voltage", "20 V", default=None, constraint="positive"),
+    },
+    "battery": {
+        "open_circuit_voltage": _pairs(
+            "", "V", "a table of state of charge and voltage", "[[0.0, '11.6 V'], [1.0, '12.8 V']]"
+        ),
+        "resistance": _q("ohm", "a resistance", "15 mohm", default=0.0),
+        "capacity": _q("A*s", "a charge", "40 A*h", constraint="positive"),
+        "initial_state_of_charge": _q("", "a fraction from 0 to 1", "0.9", default=1.0),
+    },
+    "fuse": {
+        "rated_current": _q("A", "a current", "5 A", constraint="positive"),
+        "melting_i2t": _q("A^2*s", "an I2t value", "10 A^2*s", default=None, constraint="positive"),
+        "min_melting_current": _q("A", "a current", "10.5 A", default=None, constraint="positive"),
+        "table": _text("a CSV file of current and melting time", "'fuse_curve.csv'"),
+        "generic_class": KeySpec(
+            None,
+            kind="choice",
+            default=None,
+            noun="a generic fuse class",
+            example="quick-acting",
+            choices=("quick-acting", "time-lag"),
+        ),
+    },
+    "supply_profile": {
+        "start": _q("s", "a time", "100 ms", default=0.0),
+        "standard": _text("a standard profile name", "'iso16750-2:12V:III'"),
+        "points": _pairs(
+            "s", "V", "a table of time and voltage", "[['0 ms', '12 V'], ['5 ms', '6 V']]"
+        ),
+        "file": _text("a CSV file of time and voltage", "'sag.csv'"),
     },
     "control": {
         "mode": KeySpec(
@@ -131,6 +216,15 @@ KEYS: dict[str, dict[str, KeySpec]] = {
 """Every accepted ``table.key`` with its :class:`KeySpec`. Tables are the TOML tables."""
 
 REQUIRED_TABLES = ("simulation", "motor", "supply")
+OPTIONAL_TABLES = ("brake", "protection", "precharge", "battery", "fuse", "supply_profile")
+"""Tables that describe a part the drive may not have: absent means no such part."""
+DERIVED_FIELDS = {
+    "fuse": ("table_points",),
+    "supply_profile": ("times_s", "voltages_V", "notes"),
+}
+"""Dataclass fields the loader fills from the keys (not keys themselves)."""
+POWER_STAGE_TABLES = OPTIONAL_TABLES
+"""Parts that only the averaged and switching bridge models simulate."""
 
 
 def changeable_keys() -> list[str]:
@@ -226,12 +320,231 @@ class Supply:
         DC-bus capacitance [F]; 0 means no bus capacitor.
     regenerative : bool
         Whether the source can take current back; ``False`` is a diode front end.
+    inductance : float
+        Source plus wiring inductance [H] (averaged and switching bridge models).
+    esr : float
+        Equivalent series resistance of the bus capacitor [ohm] (averaged and switching).
+    initial_bus_voltage : float or None
+        Bus capacitor voltage at t = 0 [V]; ``None``: charged to the source voltage (0 V with
+        a pre-charge circuit).
     """
 
     voltage: float
     resistance: float = 0.0
     capacitance: float = 0.0
     regenerative: bool = True
+    inductance: float = 0.0
+    esr: float = 0.0
+    initial_bus_voltage: float | None = None
+
+
+@dataclass(frozen=True)
+class Bridge:
+    """The H-bridge between the bus and the armature.
+
+    Attributes
+    ----------
+    model : str
+        ``"ideal"`` (the bridge applies the commanded voltage, clipped to the bus, with no
+        losses), ``"averaged"`` (cycle-average of the PWM legs, with conduction losses and the
+        dead-time error) or ``"switching"`` (every switching instant).
+    pwm : str
+        ``"unipolar"`` (each leg has its own duty; the armature sees 0 and +-V_bus) or
+        ``"bipolar"`` (the diagonals switch together; the armature sees +-V_bus).
+    frequency : float
+        PWM frequency [Hz].
+    alignment : str
+        ``"centre"`` (triangle carrier, pulses centred in the period) or ``"edge"``
+        (sawtooth carrier, pulses start with the period).
+    duty_counts : float
+        Timer counts per PWM period; duties are rounded to whole counts (0: not quantised).
+    min_pulse : float
+        Shortest high or low pulse the modulator produces [s]; shorter ones are dropped.
+    dead_time : float
+        Delay from one switch of a leg turning off to the other turning on [s].
+    on_resistance : float
+        On-resistance of each switch [ohm].
+    diode_drop : float
+        Forward drop of each freewheeling diode [V].
+    switching_energy : float
+        Energy lost per leg transition [J], at ``switching_energy_voltage`` and
+        ``switching_energy_current`` if given (scaled linearly with bus voltage and current).
+    switching_energy_voltage, switching_energy_current : float
+        Reference bus voltage [V] and current [A] of ``switching_energy``; 0: not scaled.
+    peak_current_limit : float
+        Cycle-by-cycle limit [A]: the comparator ends the pulse for the rest of the period
+        (0: none; switching model only).
+    blanking_time : float
+        Time after each pulse starts during which the limit comparator is ignored [s].
+    """
+
+    model: str = "ideal"
+    pwm: str = "unipolar"
+    frequency: float = 20e3
+    alignment: str = "centre"
+    duty_counts: float = 0.0
+    min_pulse: float = 0.0
+    dead_time: float = 0.0
+    on_resistance: float = 0.0
+    diode_drop: float = 0.0
+    switching_energy: float = 0.0
+    switching_energy_voltage: float = 0.0
+    switching_energy_current: float = 0.0
+    peak_current_limit: float = 0.0
+    blanking_time: float = 0.0
+
+
+@dataclass(frozen=True)
+class Brake:
+    """Brake chopper: a resistor across the bus, switched by a hysteresis comparator.
+
+    Attributes
+    ----------
+    resistance : float
+        Brake resistor [ohm].
+    on_voltage, off_voltage : float
+        Bus voltage at which the chopper switches on, and back off [V] (off < on).
+    """
+
+    resistance: float
+    on_voltage: float
+    off_voltage: float
+
+
+@dataclass(frozen=True)
+class Protection:
+    """Bus voltage trips that disable the bridge (the motor coasts).
+
+    Attributes
+    ----------
+    over_voltage, under_voltage : float
+        Trip levels [V]; 0: no such trip.
+    restart : str
+        ``"latch"`` (stays off) or ``"auto"`` (restarts after ``restart_delay`` once the bus is
+        ``restart_margin`` inside the trip levels; checked at each PWM period start).
+    restart_delay : float
+        [s]
+    restart_margin : float
+        [V]
+    """
+
+    over_voltage: float = 0.0
+    under_voltage: float = 0.0
+    restart: str = "latch"
+    restart_delay: float = 0.1
+    restart_margin: float = 0.0
+
+
+@dataclass(frozen=True)
+class Precharge:
+    """Pre-charge resistor in the supply line, bypassed after a time or at a bus voltage.
+
+    The bridge stays disabled until the bypass.
+
+    Attributes
+    ----------
+    resistance : float
+        [ohm]
+    bypass_time : float or None
+        Bypass at this time [s].
+    bypass_voltage : float or None
+        Bypass when the bus reaches this voltage [V] (whichever comes first).
+    """
+
+    resistance: float
+    bypass_time: float | None = None
+    bypass_voltage: float | None = None
+
+
+@dataclass(frozen=True)
+class Battery:
+    """Battery source: open-circuit voltage against state of charge, internal resistance.
+
+    Attributes
+    ----------
+    open_circuit_voltage : tuple of (float, float)
+        ``(state of charge [-], open-circuit voltage [V])`` points, state of charge rising;
+        linear between them and beyond the ends.
+    resistance : float
+        Internal resistance [ohm] (in series with ``supply.resistance``).
+    capacity : float
+        Capacity [C] (the file may give it in A*h).
+    initial_state_of_charge : float
+        [-], 1 = full.
+    """
+
+    open_circuit_voltage: tuple[tuple[float, float], ...]
+    capacity: float
+    resistance: float = 0.0
+    initial_state_of_charge: float = 1.0
+
+    def ocv_at(self, soc: float) -> float:
+        """Open-circuit voltage at a state of charge [V] (linear, extended at the ends)."""
+        pts = self.open_circuit_voltage
+        k = 0
+        while k < len(pts) - 2 and soc > pts[k + 1][0]:
+            k += 1
+        (s0, v0), (s1, v1) = pts[k], pts[k + 1]
+        return v0 + (v1 - v0) * (soc - s0) / (s1 - s0)
+
+
+@dataclass(frozen=True)
+class Fuse:
+    """Fuse element in the supply line (first-order heating model).
+
+    Attributes
+    ----------
+    rated_current : float
+        [A]
+    melting_i2t : float or None
+        Pre-arcing I^2 t of the adiabatic region [A^2 s].
+    min_melting_current : float or None
+        Smallest current that ever melts the element [A]; default 2.1 x rated.
+    table : str or None
+        CSV file of current [A] and melting time [s], fitted to the model (alternative to
+        ``melting_i2t``).
+    generic_class : str or None
+        ``"quick-acting"`` or ``"time-lag"``: a generic model inside the IEC 60127-2 gates of
+        the class (with a warning: the maker's curve should replace it).
+    table_points : tuple of (float, float)
+        The table as read (filled by the loader).
+    """
+
+    rated_current: float
+    melting_i2t: float | None = None
+    min_melting_current: float | None = None
+    table: str | None = None
+    generic_class: str | None = None
+    table_points: tuple[tuple[float, float], ...] = ()
+
+
+@dataclass(frozen=True)
+class SupplyProfile:
+    """Source voltage against time: piecewise linear from ``start``.
+
+    Attributes
+    ----------
+    start : float
+        When the profile begins [s]; before it the source is at ``supply.voltage``.
+    standard : str or None
+        Name of a built-in standard profile.
+    points : tuple of (float, float) or None
+        ``(time from start [s], voltage [V])`` points.
+    file : str or None
+        CSV of time and voltage.
+    times_s, voltages_V : tuple of float
+        The resolved profile (filled by the loader from whichever was given).
+    notes : str
+        Source of a standard profile and what in it is approximated or from memory.
+    """
+
+    start: float = 0.0
+    standard: str | None = None
+    points: tuple[tuple[float, float], ...] | None = None
+    file: str | None = None
+    times_s: tuple[float, ...] = ()
+    voltages_V: tuple[float, ...] = ()
+    notes: str = ""
 
 
 @dataclass(frozen=True)
@@ -280,8 +593,10 @@ class Scenario:
 
     Attributes
     ----------
-    simulation, motor, load, supply, control, about
+    simulation, motor, load, supply, control, about, bridge
         The tables of the file.
+    brake, protection, precharge, battery, fuse, supply_profile
+        Optional parts; ``None`` when the file has no such table.
     events : tuple of Event
         Sorted by time (stable for equal times, in file order).
     source : str
@@ -294,6 +609,13 @@ class Scenario:
     load: Load = field(default_factory=Load)
     control: Control = field(default_factory=Control)
     about: About = field(default_factory=About)
+    bridge: Bridge = field(default_factory=Bridge)
+    brake: Brake | None = None
+    protection: Protection | None = None
+    precharge: Precharge | None = None
+    battery: Battery | None = None
+    fuse: Fuse | None = None
+    supply_profile: SupplyProfile | None = None
     events: tuple[Event, ...] = ()
     source: str = "<scenario>"
 
@@ -318,4 +640,5 @@ class Scenario:
     def get(self, dotted: str) -> Any:
         """Value of a dotted key, e.g. ``sc.get("motor.resistance")`` [SI]."""
         table, _, key = dotted.partition(".")
-        return getattr(getattr(self, table), key)
+        part = getattr(self, table)
+        return None if part is None else getattr(part, key)

@@ -1,0 +1,164 @@
+"""Runs of the averaged and switching bridge models: inputs -> kernel -> result."""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+
+import numpy as np
+
+from dcsim.engine import bridge_layout as B
+from dcsim.engine.assemble import BridgeInputs
+from dcsim.engine.bridge_kernel import CACHE_SLOTS, run_periods, start_run
+from dcsim.errors import SimulationError
+
+CHUNK_STEPS = 2_000_000
+"""Nominal steps per kernel call; between calls the run reports progress."""
+
+TRIP_NAMES = {
+    B.TRIP_OVER_VOLTAGE: "over_voltage",
+    B.TRIP_UNDER_VOLTAGE: "under_voltage",
+    B.TRIP_RESTART: "restart",
+    B.TRIP_FUSE: "fuse_melted",
+    B.TRIP_BYPASS: "precharge_bypassed",
+    B.TRIP_BUS_COLLAPSE: "bus_collapsed",
+}
+
+
+def run_bridge_inputs(bi: BridgeInputs, progress: Callable[[float], None] | None = None):
+    """Run the bridge kernel; returns ``(status, t_stop, rec, acc, x, q, trips)``."""
+    rec = np.zeros((B.N_REC, bi.rows))
+    acc = np.zeros(B.N_ACC)
+    trips = np.zeros((B.MAX_TRIPS + 1, 3))
+    q = bi.params.copy()
+    x = bi.state0.copy()
+    md = bi.modes0.copy()
+    legs = np.zeros(2, dtype=np.int64)
+    counters = np.zeros(4, dtype=np.int64)
+    cache = (
+        np.full(CACHE_SLOTS, -1, dtype=np.int64),
+        np.zeros(CACHE_SLOTS, dtype=np.int64),
+        np.zeros(CACHE_SLOTS, dtype=np.int64),
+        np.zeros((CACHE_SLOTS, 2, B.N_A, B.N_A)),
+    )
+    ev = (bi.event_time_s, bi.event_index, bi.event_value)
+    start_run(x, md, q, *ev, counters, rec, acc, trips, bi.ocv_soc, bi.ocv_V, legs)
+    per_chunk = max(1, CHUNK_STEPS // bi.n_grid)
+    status, t_stop = B.STATUS_OK, 0.0
+    for p_first in range(0, bi.n_periods, per_chunk):
+        p_last = min(p_first + per_chunk, bi.n_periods) - 1
+        status, t_stop = run_periods(
+            x, md, q, bi.period_s, bi.n_grid, bi.steps_per_row, bi.duration_s, p_first,
+            p_last, *ev, counters, rec, acc, trips, bi.ocv_soc, bi.ocv_V, legs, *cache,
+        )  # fmt: skip
+        if progress is not None:
+            progress((p_last + 1) / bi.n_periods)
+        if status != B.STATUS_OK:
+            break
+    return int(status), float(t_stop), rec[:, : counters[1]], acc, x, q, trips
+
+
+def stop_message(source: str, status: int, t_stop: float) -> str:
+    where = f"{source}: run stopped at t = {t_stop:.6g} s: "
+    if status == B.STATUS_BATTERY_EMPTY:
+        return where + (
+            "the battery's state of charge reached 0; raise battery.capacity or "
+            "battery.initial_state_of_charge, or shorten the run"
+        )
+    return where + (
+        "the state became non-finite; the parameters give an unbounded solution or values "
+        "beyond floating point (check the magnitudes and units of the scenario)"
+    )
+
+
+def bridge_energy_account(bi: BridgeInputs, acc, xf, qf) -> dict[str, float]:
+    """Energy terms of a bridge-model run [J]; the supply term equals the sum of the others."""
+    q0, x0 = bi.params, bi.state0
+    with np.errstate(over="ignore", invalid="ignore"):
+        kinetic = 0.5 * (qf[B.Q_J] * xf[B.S_W] ** 2 - q0[B.Q_J] * x0[B.S_W] ** 2)
+        stored = 0.5 * q0[B.Q_L] * (xf[B.S_I] ** 2 - x0[B.S_I] ** 2)
+        stored += 0.5 * q0[B.Q_C] * (xf[B.S_VC] ** 2 - x0[B.S_VC] ** 2)
+        stored += 0.5 * q0[B.Q_LS] * (xf[B.S_IS] ** 2 - x0[B.S_IS] ** 2)
+    terms = {
+        "energy_from_supply_J": float(acc[B.A_SUPPLY]),
+        "energy_source_loss_J": float(acc[B.A_SOURCE_LOSS]),
+        "energy_copper_loss_J": float(acc[B.A_COPPER]),
+        "energy_friction_J": float(acc[B.A_FRICTION]),
+        "energy_to_load_J": float(acc[B.A_LOAD]),
+        "energy_shaft_lock_J": float(acc[B.A_LOCK]),
+        "energy_coupling_J": float(acc[B.A_COUPLING]),
+        "energy_bridge_loss_J": float(acc[B.A_BRIDGE]),
+        "energy_to_brake_resistor_J": float(acc[B.A_BRAKE]),
+        "energy_capacitor_esr_J": float(acc[B.A_ESR]),
+        "energy_precharge_loss_J": float(acc[B.A_PRECHARGE]),
+        "energy_fuse_arc_J": float(acc[B.A_FUSE_ARC]),
+        "kinetic_energy_change_J": float(kinetic),
+        "stored_energy_change_J": float(stored),
+    }
+    with np.errstate(over="ignore", invalid="ignore"):
+        spent = sum(v for k, v in terms.items() if k != "energy_from_supply_J")
+        terms["energy_balance_residual_J"] = terms["energy_from_supply_J"] - spent
+    return terms
+
+
+def bridge_summary(sc, bi: BridgeInputs, acc, xf, qf, trips) -> dict:
+    """The summary of a bridge-model run (SI numbers; ``trips`` a list of dicts)."""
+    summary: dict = {
+        "peak_current_A": float(acc[B.A_PEAK_I]),
+        "peak_current_time_s": float(acc[B.A_PEAK_I_TIME]),
+        "i2t_A2s": float(acc[B.A_I2T]),
+        "final_speed_rad_s": float(xf[B.S_W]),
+        "final_current_A": float(xf[B.S_I]),
+        "final_position_rad": float(xf[B.S_TH]),
+        "peak_bus_voltage_V": float(acc[B.A_BUS_MAX]),
+        "min_bus_voltage_V": float(acc[B.A_BUS_MIN]),
+    }
+    summary.update(bridge_energy_account(bi, acc, xf, qf))
+    bad = sorted(k for k, v in summary.items() if not np.isfinite(v))
+    if bad:
+        raise SimulationError(
+            f"{sc.source}: the run's totals are not finite ({', '.join(bad)}): the values "
+            "exceed floating point; check the magnitudes and units of the scenario"
+        )
+    n = int(trips[0, 0])
+    log = [
+        {"time_s": float(trips[1 + k, 0]), "kind": TRIP_NAMES[int(trips[1 + k, 1])],
+         "bus_voltage_V": float(trips[1 + k, 2])}
+        for k in range(n)
+    ]  # fmt: skip
+    summary.update(
+        {
+            "bridge_model": sc.bridge.model,
+            "peak_brake_power_W": float(acc[B.A_BRAKE_PEAK_W]),
+            "current_limit_events": int(acc[B.A_LIMIT_EVENTS]),
+            "switching_events": int(acc[B.A_SWITCHINGS]),
+            "trips": [
+                e for e in log if e["kind"] in ("over_voltage", "under_voltage", "bus_collapsed")
+            ],
+            "restarts": [e for e in log if e["kind"] == "restart"],
+            "fuse_melted": bool(acc[B.A_FUSE_MELT_TIME] >= 0.0),
+            "fuse_melt_time_s": float(acc[B.A_FUSE_MELT_TIME])
+            if acc[B.A_FUSE_MELT_TIME] >= 0.0
+            else None,
+            "peak_fuse_heat_fraction": float(acc[B.A_FUSE_PEAK]) if sc.fuse is not None else None,
+        }
+    )
+    if sc.battery is not None:
+        summary["initial_state_of_charge"] = float(bi.state0[B.S_SOC])
+        summary["final_state_of_charge"] = float(xf[B.S_SOC])
+    if sc.precharge is not None:
+        t_b = float(acc[B.A_BYPASS_TIME])
+        summary["precharge_bypass_time_s"] = t_b if t_b >= 0.0 else None
+    if bi.fuse_model is not None and bi.fuse_model.warning:
+        summary["fuse_warning"] = bi.fuse_model.warning
+    summary.update(
+        {
+            "duration_s": bi.duration_s,
+            "step_s": bi.step_s,
+            "record_interval_s": bi.record_interval_s,
+            "steps": bi.n_periods * bi.n_grid,
+            "located_regime_changes": int(acc[B.A_SPLITS]),
+        }
+    )
+    if bi.switching:
+        summary["pwm_period_s"] = bi.period_s
+    return summary
