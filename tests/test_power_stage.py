@@ -342,11 +342,20 @@ def test_under_voltage_trip_and_auto_restart():
     s = res.summary
     assert [e["kind"] for e in s["trips"]] == ["under_voltage"]
     assert s["trips"][0]["bus_voltage_V"] == pytest.approx(18.0, abs=1e-3)
-    # the profile ramps 24 -> 12 V over 10 ms: 18 V at 5 ms (linear interpolation); the bus
-    # follows the source closely (stiff source, 1 mohm)
-    assert s["trips"][0]["time_s"] == pytest.approx(0.105, abs=2e-4)
+    # the trip is where the bus (which lags the ramping source by about R_s C = 1 ms, a
+    # first-order lag) crosses 18 V: check against the recorded bus voltage
+    tr = res.trace
+    t, vb = tr["time_s"], tr["bus_voltage_V"]
+    k = int(np.argmax(vb <= 18.0))
+    t_cross = t[k - 1] + (18.0 - vb[k - 1]) * (t[k] - t[k - 1]) / (vb[k] - vb[k - 1])
+    assert s["trips"][0]["time_s"] == pytest.approx(t_cross, abs=(t[1] - t[0]) * 0.05)
+    assert 0.105 < s["trips"][0]["time_s"] < 0.105 + 2e-3
+    # restart: at the first check (each kernel period, here a trace row) after the bus is back
+    # above 19 V (trip level + margin) and the 50 ms delay has passed
     assert len(s["restarts"]) == 1
-    assert s["restarts"][0]["time_s"] >= 0.21 - 1e-9  # the bus is back above 19 V at ~0.2095 s
+    back = t[(t > 0.2) & (vb >= 19.0)][0]
+    assert back - (t[1] - t[0]) <= s["restarts"][0]["time_s"] <= back + 1e-12
+    assert s["restarts"][0]["bus_voltage_V"] >= 19.0
 
 
 def test_precharge_follows_the_rc_charge_and_bypasses_at_its_voltage():

@@ -441,8 +441,14 @@ def assemble_bridge(sc: Scenario) -> BridgeInputs:
     if switching:
         period = 1.0 / sc.bridge.frequency
         n_grid = max(MIN_GRID_PER_PERIOD, math.ceil(period / h_target - 1e-9))
-        if record is not None and record < period / n_grid:
-            n_grid = math.ceil(period / record - 1e-9)
+        if record is not None:
+            per_period = period / record
+            if abs(per_period - round(per_period)) <= 1e-9 * per_period and per_period >= 1:
+                # whole rows per period: a grid that puts every row on a step
+                r = round(per_period)
+                n_grid = r * math.ceil(n_grid / r)
+            elif record < period / n_grid:
+                n_grid = math.ceil(period / record - 1e-9)
         h = period / n_grid
     else:
         h = h_target

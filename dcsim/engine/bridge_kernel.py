@@ -215,6 +215,7 @@ C_NG = 6  # number of guard rows (without the limit rows)
 N_C = 7
 N_WORK = 18  # values per point kept by `point_values`
 CACHE_SLOTS = 4096
+FORM_SLOTS = 256
 MAX_BP = 64  # schedule breakpoints per period beyond the grid
 STATUS_LIMIT = 100  # internal: the peak current limit ended the pulse
 _ACC_OF_WORK = np.array(
@@ -1260,6 +1261,10 @@ def run_periods(x, md, q, period, n_grid, n_sub, duration, p_first, p_last, ev_t
     xmt = np.zeros(N_A)
     work = np.zeros((3, N_WORK))
     rowwork = np.zeros((3, N_WORK))
+    fcache = np.zeros((FORM_SLOTS, N_F, N_A))
+    fcache_sc = np.zeros((FORM_SLOTS, N_C))
+    fcache_key = np.full(FORM_SLOTS, -1, dtype=np.int64)
+    fcache_gen = np.zeros(FORM_SLOTS, dtype=np.int64)
     sched = np.zeros((5, 8))
     ssched = np.zeros((4, 8), dtype=np.int64)
     carry = np.zeros(1, dtype=np.int64)
@@ -1350,16 +1355,33 @@ def run_periods(x, md, q, period, n_grid, n_sub, duration, p_first, p_last, ev_t
                 md[M_LEG_A] = la
                 md[M_LEG_B] = lb
                 carry[0] = 0
-                if bedges[k] > 0 and switching:
+                # the forms of the new leg states, from a small cache (they repeat every
+                # period); the other modes are still right if every guard holds at x
+                fk = mode_key(md) * 4 + md[M_TRIP] * 2 + md[M_MELTED]
+                fs_ = fk & (FORM_SLOTS - 1)
+                if fcache_key[fs_] == fk and fcache_gen[fs_] == genbox[0]:
+                    for r_ in range(N_F):
+                        for j_ in range(N_A):
+                            forms[r_, j_] = fcache[fs_, r_, j_]
+                    for j_ in range(N_C):
+                        fsc[j_] = fcache_sc[fs_, j_]
+                else:
                     compute_forms(md, q, forms, fsc)
+                    fcache[fs_] = forms
+                    fcache_sc[fs_] = fsc
+                    fcache_key[fs_] = fk
+                    fcache_gen[fs_] = genbox[0]
+                if bedges[k] > 0 and switching:
                     switching_energy(x, md, q, forms, fsc, bedges[k], acc)
                     acc[A_SWITCHINGS] += bedges[k]
-                st = update_modes(x, md, q, forms, fsc, t0, acc, trips, ocv_soc, ocv_v)
-                if st == -1:
-                    genbox[0] += 1
-                elif st != STATUS_OK:
-                    status = st
-                    break
+                held = md[M_SIGMA] == 0 and fsc[C_SENS] < 0.5  # no longer held at zero
+                if held or guard_min(x, md, q, forms, fsc, False) < 0.0:
+                    st = update_modes(x, md, q, forms, fsc, t0, acc, trips, ocv_soc, ocv_v)
+                    if st == -1:
+                        genbox[0] += 1
+                    elif st != STATUS_OK:
+                        status = st
+                        break
             lim = blim[k] == 1 and bridge_enabled(md) and not limited_now
             t = t0
             hit_limit = False

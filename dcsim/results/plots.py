@@ -147,6 +147,31 @@ def _draw_torques(ax: Axes, result: SimulationResult, time: _TimeAxis) -> None:
     _legend(ax)
 
 
+def _draw_supply(ax: Axes, result: SimulationResult, time: _TimeAxis) -> None:
+    """Supply-line current and brake resistor current; the fuse heat fraction on the right."""
+    tr = result.trace
+    ax.plot(time.values, tr["supply_current_A"], color=_INK, linewidth=1.2, label="supply")
+    ax.plot(
+        time.values,
+        tr["brake_current_A"],
+        color=_ORANGE,
+        linewidth=1.0,
+        linestyle=(0, (4, 1.5)),
+        label="brake resistor",
+    )
+    _style(ax, "current [A]")
+    if result.scenario.fuse is not None:
+        heat = ax.twinx()
+        heat.plot(time.values, tr["fuse_heat_fraction"], color=_PURPLE, linewidth=1.0)
+        heat.axhline(1.0, color=_PURPLE, linewidth=0.8, linestyle=(0, (1, 2)))
+        heat.set_ylabel("fuse heat\n(1 = melts)", color=_PURPLE)
+        heat.tick_params(colors=_PURPLE, labelsize=8)
+        heat.set_ylim(0.0, 1.1)
+        for side in ("top", "left"):
+            heat.spines[side].set_visible(False)
+    _legend(ax)
+
+
 _Drawer = Callable[[Axes, SimulationResult, _TimeAxis], None]
 
 _PANELS: tuple[tuple[str, _Drawer], ...] = (
@@ -156,6 +181,15 @@ _PANELS: tuple[tuple[str, _Drawer], ...] = (
     ("torque", _draw_torques),
 )
 """Each quantity: its file stem and how to draw it. Order is the overview's, top to bottom."""
+
+_SUPPLY_PANEL: tuple[str, _Drawer] = ("supply", _draw_supply)
+"""Added for the averaged and switching bridge models (their trace has the bus circuit)."""
+
+
+def _panels(result: SimulationResult) -> tuple[tuple[str, _Drawer], ...]:
+    if "brake_current_A" in result.trace:
+        return _PANELS + (_SUPPLY_PANEL,)
+    return _PANELS
 
 
 def _mark_events(axes: Sequence[Axes], markers: list[_Marker], time: _TimeAxis) -> None:
@@ -207,7 +241,9 @@ def plot_overview(result: SimulationResult) -> Figure:
     """Stacked panels of the main traces of a run, sharing the time axis.
 
     Panels, top to bottom: armature current [A]; speed [rad/s] with a secondary scale in rpm;
-    bus and armature voltage [V]; motor and load torque [N*m]. Scenario events are dashed
+    bus and armature voltage [V]; motor and load torque [N*m]; for the averaged and switching
+    bridge models also the supply-line and brake resistor currents [A] with the fuse heat
+    fraction. Scenario events are dashed
     vertical lines labelled with the key they change. The time axis is in ms when the run is
     shorter than 1 s. The footer carries the caution line.
 
@@ -223,9 +259,10 @@ def plot_overview(result: SimulationResult) -> Figure:
         A figure not known to ``pyplot``; save it with ``fig.savefig(...)``.
     """
     time = _time_axis(result)
-    fig = _new_figure(len(_PANELS))
-    axes = fig.subplots(len(_PANELS), 1, sharex=True)
-    for ax, (_, draw) in zip(axes, _PANELS, strict=True):
+    panels = _panels(result)
+    fig = _new_figure(len(panels))
+    axes = fig.subplots(len(panels), 1, sharex=True)
+    for ax, (_, draw) in zip(axes, panels, strict=True):
         draw(ax, result, time)
     axes[-1].set_xlabel(time.label, color=_INK)
     _mark_events(axes, _event_markers(result), time)
@@ -248,7 +285,7 @@ def plot_quantity(result: SimulationResult, name: str) -> Figure:
     matplotlib.figure.Figure
         The single-panel figure, with events, title and caution footer.
     """
-    panels = dict(_PANELS)
+    panels = dict(_panels(result))
     if name not in panels:
         raise ValueError(f"no plot named {name!r}; choose one of {', '.join(panels)}")
     time = _time_axis(result)
@@ -262,7 +299,8 @@ def plot_quantity(result: SimulationResult, name: str) -> Figure:
 
 
 PLOT_FILES: tuple[str, ...] = ("overview.png",) + tuple(f"{stem}.png" for stem, _ in _PANELS)
-"""File names :func:`save_plots` writes, in order."""
+"""File names :func:`save_plots` writes, in order (plus ``supply.png`` for the averaged and
+switching bridge models)."""
 
 
 def save_plots(result: SimulationResult, out_dir_tmp: str | Path) -> list[Path]:
@@ -289,7 +327,10 @@ def save_plots(result: SimulationResult, out_dir_tmp: str | Path) -> list[Path]:
     out = Path(out_dir_tmp)
     figures: list[tuple[str, Callable[[], Figure]]] = [
         ("overview.png", lambda: plot_overview(result)),
-        *((f"{stem}.png", lambda stem=stem: plot_quantity(result, stem)) for stem, _ in _PANELS),
+        *(
+            (f"{stem}.png", lambda stem=stem: plot_quantity(result, stem))
+            for stem, _ in _panels(result)
+        ),
     ]
 
     written = []

@@ -35,6 +35,11 @@ _ENERGY_LABELS = {
     "energy_coupling_J": "lost or carried off by load coupling",
     "kinetic_energy_change_J": "change of kinetic energy",
     "stored_energy_change_J": "change of stored energy (L, C)",
+    "energy_bridge_loss_J": "bridge loss (switches, diodes)",
+    "energy_to_brake_resistor_J": "to the brake resistor",
+    "energy_capacitor_esr_J": "bus capacitor ESR loss",
+    "energy_precharge_loss_J": "pre-charge resistor loss",
+    "energy_fuse_arc_J": "supply inductance energy at fuse opening",
 }
 
 
@@ -136,7 +141,7 @@ def format_summary(summary: Mapping[str, Any]) -> str:
     to the source energy.
     """
     get = summary.get
-    width = 36
+    width = 42
     lines = ["Run summary"]
 
     def row(label: str, text: str) -> None:
@@ -158,6 +163,9 @@ def format_summary(summary: Mapping[str, Any]) -> str:
         f"min {_num(get('min_bus_voltage_V'), 'V')}   max {_num(get('peak_bus_voltage_V'), 'V')}",
     )
 
+    if get("bridge_model") is not None:
+        _power_stage_rows(summary, row)
+
     terms = energy_terms(summary)
     if terms or _RESIDUAL_KEY in summary:
         lines.append("")
@@ -175,3 +183,36 @@ def format_summary(summary: Mapping[str, Any]) -> str:
     lines.append("")
     lines.append(CAUTION)
     return "\n".join(lines)
+
+
+def _power_stage_rows(summary: Mapping[str, Any], row) -> None:
+    """Rows of the averaged and switching bridge models: chopper, trips, fuse, battery."""
+    get = summary.get
+    row("bridge model", str(get("bridge_model")))
+    if get("switching_events"):
+        row("switching events (leg transitions)", str(get("switching_events")))
+    if get("current_limit_events"):
+        row("pulses ended by the peak current limit", str(get("current_limit_events")))
+    if get("energy_to_brake_resistor_J"):
+        row("peak brake resistor power", _num(get("peak_brake_power_W"), "W"))
+    events = list(get("trips") or []) + list(get("restarts") or [])
+    for e in sorted(events, key=lambda e: e["time_s"]):
+        what = str(e["kind"]).replace("_", " ")
+        row(f"{what}", f"at {_time(e['time_s'])}, bus {_num(e['bus_voltage_V'], 'V')}")
+    if get("peak_fuse_heat_fraction") is not None:
+        if get("fuse_melted"):
+            row("fuse", f"MELTED at {_time(get('fuse_melt_time_s'))}")
+        else:
+            frac = _num(100.0 * float(get("peak_fuse_heat_fraction")), "%", digits=3)
+            row("fuse", f"intact; peak heat {frac} of melting")
+    if get("fuse_warning"):
+        row("fuse model", str(get("fuse_warning")))
+    if get("final_state_of_charge") is not None:
+        row(
+            "battery state of charge",
+            f"{_num(get('initial_state_of_charge'), digits=4)} -> "
+            f"{_num(get('final_state_of_charge'), digits=4)}",
+        )
+    if "precharge_bypass_time_s" in summary:
+        t_b = get("precharge_bypass_time_s")
+        row("pre-charge bypassed", "never" if t_b is None else f"at {_time(t_b)}")
