@@ -634,3 +634,79 @@ def test_bad_power_stage_input_gets_one_clear_message(text, key, fragment):
     assert err.key == key, str(err)
     assert fragment in str(err)
     assert str(err).startswith("rig.toml")
+
+
+# --------------------------------------------------------------------------------------------
+# Bus details and modulator settings
+# --------------------------------------------------------------------------------------------
+
+
+def test_supply_inductance_rings_with_the_bus_capacitor_at_the_lc_frequency():
+    # The bus capacitor starts at 20 V behind a 24 V source with 10 uH of wiring inductance and
+    # the bridge at zero duty (no load): it rings at f = 1 / (2 pi sqrt(L_s C)).
+    # Source: any circuits text (natural frequency of a series RLC); the damping by R_s =
+    # 5 mohm shifts it by sqrt(1 - zeta^2), zeta = R_s/2 sqrt(C/L_s) = 0.008: 3e-5 relative.
+    text = bench(model="averaged", volts=0.0, record="0.5 us", duration="2 ms").replace(
+        'resistance = "1 mohm"\ncapacitance = "1 F"',
+        'resistance = "5 mohm"\ncapacitance = "100 uF"\ninductance = "10 uH"\n'
+        'initial_bus_voltage = "20 V"',
+    )
+    sc = dcsim.load_scenario_text(text)
+    res = dcsim.simulate(sc)
+    assert_energy_closes(res.summary, stored_J=0.5 * 100e-6 * 24.0**2)
+    t, vb = res.trace["time_s"], res.trace["bus_voltage_V"]
+    x = vb - 24.0
+    k = np.nonzero((x[:-1] < 0) & (x[1:] >= 0))[0]
+    ups = t[k] - x[k] * (t[k + 1] - t[k]) / (x[k + 1] - x[k])  # interpolated crossings
+    f_meas = (len(ups) - 1) / (ups[-1] - ups[0])
+    f_ref = 1.0 / (2 * math.pi * math.sqrt(10e-6 * 100e-6))
+    assert f_meas == pytest.approx(f_ref, rel=1e-4)
+    # the swing: 4 V about 24 V, decaying as exp(-R_s t / (2 L_s)); the first maximum at half a
+    # period (Source: series RLC step response, underdamped)
+    assert vb.max() == pytest.approx(24.0 + 4.0 * math.exp(-5e-3 * 0.5 / f_ref / 2e-5), rel=1e-3)
+
+
+def test_capacitor_esr_loss_is_its_current_squared_times_esr():
+    # Source: Joule's law on the ESR; the account closes with the ESR term. Averaged bridge:
+    # the capacitor current is smooth, so the trapezoid of the trace is accurate.
+    text = bench(model="averaged", volts=12.0, duration="5 ms", record="1 us").replace(
+        'capacitance = "1 F"', 'capacitance = "220 uF"\nesr = "50 mohm"'
+    )
+    res = run(text)
+    tr = res.trace
+    quad = np.trapezoid(0.05 * tr["capacitor_current_A"] ** 2, tr["time_s"])
+    assert res.summary["energy_capacitor_esr_J"] == pytest.approx(quad, rel=1e-4)
+    assert res.summary["energy_capacitor_esr_J"] > 0.0
+
+
+def test_duty_is_quantised_to_timer_counts_and_short_pulses_are_dropped():
+    # Source: a timer compare register holds whole counts: d = round(d N) / N; a modulator
+    # drops pulses shorter than its minimum (definition of the setting).
+    res = run(bench(volts=0.43 * V_BUS, duration="1 ms", bridge_extra="duty_counts = 10"))
+    # unipolar: d_A = round(7.15)/10 = 0.7, d_B = round(2.85)/10 = 0.3 -> m = 0.4
+    assert res.trace["duty"][-1] == pytest.approx(0.4, abs=1e-12)
+    res = run(bench(volts=0.99 * V_BUS, duration="1 ms", bridge_extra='min_pulse = "1 us"'))
+    # d_A = 0.995: its low pulse 0.25 us < 1 us -> 1; d_B = 0.005: high pulse dropped -> 0
+    assert res.trace["duty"][-1] == pytest.approx(1.0, abs=1e-12)
+
+
+def test_edge_aligned_ripple():
+    # Edge-aligned carriers: bipolar ripple is the same as centre-aligned (one on and one off
+    # interval per period either way); unipolar with both pulses starting the period gives one
+    # pulse of m T per period, ripple V m (1 - m) / (L f_s) at f_s.
+    # Source: Mohan, Undeland & Robbins (as above), the same volt-second argument.
+    for pwm, ref in (
+        ("bipolar", ripple_formula("bipolar", 0.5)),
+        ("unipolar", V_BUS * 0.5 * 0.5 / (L_ARM * F_PWM)),
+    ):
+        res = run(bench(pwm=pwm, volts=12.0, bridge_extra='alignment = "edge"'))
+        _, i = last_periods(res)
+        assert float(i.max() - i.min()) == pytest.approx(ref, rel=0.03)
+
+
+def test_generic_fuse_class_warns_in_the_summary():
+    text = FUSED.format(duration="10 ms", r=2.0).replace(
+        'melting_i2t = "10 A^2*s"\nmin_melting_current = "10.5 A"', 'generic_class = "time-lag"'
+    )
+    res = run(text)
+    assert "maker" in res.summary["fuse_warning"]
