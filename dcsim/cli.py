@@ -208,9 +208,12 @@ def _cmd_validate(args: argparse.Namespace) -> int:
     scenario = _load(args.scenario)
     # the run's plan too (step, rows, events against the parameters): what `run` would
     # refuse, `validate` refuses. assemble needs numpy only, not the compiled kernel.
-    from dcsim.engine.assemble import assemble
+    from dcsim.engine.assemble import assemble, assemble_bridge
 
-    assemble(scenario)
+    if scenario.bridge.model == "ideal":
+        assemble(scenario)
+    else:
+        assemble_bridge(scenario)
     n = len(scenario.events)
     duration = scenario.simulation.duration
     _write(sys.stdout, f"ok: {args.scenario} ({duration:g} s, {n} event{'' if n == 1 else 's'})\n")
