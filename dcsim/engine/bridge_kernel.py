@@ -192,7 +192,7 @@ from dcsim.engine.bridge_layout import (
     TRIP_UNDER_VOLTAGE,
 )
 from dcsim.engine.expm import expm
-from dcsim.plant.mechanics import fill_shaft_rows, friction_state
+from dcsim.plant.mechanics import fill_shaft_rows, friction_state, inertia_change
 
 # linear forms over the augmented state (rows of `forms`)
 F_VN = 0  # bus node voltage
@@ -1183,12 +1183,8 @@ def apply_event(x, md, q, index, value, acc, trips, t):
             acc[A_LOCK] += 0.5 * q[Q_J] * w * w
             x[S_W] = 0.0
         elif index == Q_J and w != 0.0:
-            if value > q[Q_J]:
-                w_new = q[Q_J] * w / value
-                acc[A_COUPLING] += 0.5 * q[Q_J] * w * w - 0.5 * value * w_new * w_new
-                x[S_W] = w_new
-            else:
-                acc[A_COUPLING] += 0.5 * (q[Q_J] - value) * w * w
+            x[S_W], lost = inertia_change(w, q[Q_J], value)
+            acc[A_COUPLING] += lost
         q[index] = value
 
 

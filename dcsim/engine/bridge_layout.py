@@ -6,6 +6,8 @@ charge). Every array is flat and indexed by the constants below; :mod:`dcsim.eng
 fills them.
 """
 
+from dcsim.engine import layout
+
 # State vector (N_S); the propagators act on the augmented vector [x, 1] (N_A)
 S_I = 0  # armature current [A]
 S_W = 1  # shaft speed [rad/s]
@@ -145,18 +147,7 @@ R_LIMIT = 18
 R_ENABLED = 19
 N_REC = 20
 
-RECORD_NAMES = (
-    "time_s",
-    "current_A",
-    "speed_rad_s",
-    "position_rad",
-    "armature_voltage_V",
-    "bus_voltage_V",
-    "motor_torque_Nm",
-    "load_torque_Nm",
-    "supply_current_A",
-    "friction_torque_Nm",
-    "bridge_bus_current_A",
+RECORD_NAMES = layout.RECORD_NAMES + (
     "duty",
     "bridge_state",
     "capacitor_current_A",
@@ -167,6 +158,7 @@ RECORD_NAMES = (
     "current_limit_active",
     "bridge_enabled",
 )
+"""The core kernel's columns (same order, same meaning), then the power stage's."""
 
 # Trip log kinds
 TRIP_OVER_VOLTAGE = 1

@@ -89,7 +89,7 @@ from dcsim.engine.layout import (
     X_SPEED,
 )
 from dcsim.plant.machine import fill_armature_row
-from dcsim.plant.mechanics import fill_shaft_rows, friction_state
+from dcsim.plant.mechanics import fill_shaft_rows, friction_state, inertia_change
 from dcsim.power.bus import bus_without_capacitor, fill_bus_row
 
 N_REGIME = 12  # 2 shaft states x 3 bridge states x 2 source states
@@ -583,24 +583,16 @@ def apply_event(x, p, index, value, acc):
     """Set parameter ``index`` to ``value``, with the energy a sudden change implies.
 
     Locking a turning rotor removes its kinetic energy (``A_LOCK``). A change of the inertia
-    on the shaft is a load mass engaging or being released: an engaging mass (at rest) shares
-    the angular momentum, ``w' = J w / J'``, and the coupling dissipates
-    ``J w^2 / 2 - J' w'^2 / 2``; a released mass keeps its speed and carries its kinetic energy
-    ``(J - J') w^2 / 2`` away. Both go to ``A_COUPLING`` (conservation of angular momentum in a
-    perfectly inelastic coupling; e.g. Meriam & Kraige, *Engineering Mechanics: Dynamics*,
-    angular impulse and momentum -- chapter from memory).
+    on the shaft is a load mass engaging or being released
+    (:func:`~dcsim.plant.mechanics.inertia_change`); the energy goes to ``A_COUPLING``.
     """
     w = x[X_SPEED]
     if index == P_LOCK and value > 0.5 and w != 0.0:
         acc[A_LOCK] += 0.5 * p[P_J] * w * w
         x[X_SPEED] = 0.0
     elif index == P_J and w != 0.0:
-        if value > p[P_J]:
-            w_new = p[P_J] * w / value
-            acc[A_COUPLING] += 0.5 * p[P_J] * w * w - 0.5 * value * w_new * w_new
-            x[X_SPEED] = w_new
-        else:
-            acc[A_COUPLING] += 0.5 * (p[P_J] - value) * w * w
+        x[X_SPEED], lost = inertia_change(w, p[P_J], value)
+        acc[A_COUPLING] += lost
     p[index] = value
 
 

@@ -101,3 +101,34 @@ def fill_shaft_rows(
         a[X_POSITION, X_SPEED] = 1.0
         b[X_SPEED] = -opposing_torque_Nm / j_kgm2
     b[X_POSITION] = 0.0
+
+
+@njit(cache=True, error_model="numpy")
+def inertia_change(speed_rad_s: float, j_old: float, j_new: float) -> tuple[float, float]:
+    """Speed after the inertia on the shaft changes suddenly, and the energy that leaves.
+
+    An engaging mass (at rest) shares the angular momentum, ``w' = J w / J'``, and the
+    coupling dissipates ``J w^2 / 2 - J' w'^2 / 2``; a released mass keeps its speed and
+    carries its kinetic energy ``(J - J') w^2 / 2`` away (conservation of angular momentum in
+    a perfectly inelastic coupling; e.g. Meriam & Kraige, *Engineering Mechanics: Dynamics*,
+    angular impulse and momentum -- chapter from memory).
+
+    Parameters
+    ----------
+    speed_rad_s : float
+        Shaft speed before [rad/s].
+    j_old, j_new : float
+        Total inertia before and after [kg*m^2].
+
+    Returns
+    -------
+    speed_rad_s : float
+        Shaft speed after [rad/s].
+    energy_J : float
+        Kinetic energy lost in the coupling or carried off [J] (>= 0).
+    """
+    w = speed_rad_s
+    if j_new > j_old:
+        w_new = j_old * w / j_new
+        return w_new, 0.5 * j_old * w * w - 0.5 * j_new * w_new * w_new
+    return w, 0.5 * (j_old - j_new) * w * w
