@@ -8,6 +8,7 @@ reference's assumptions hold (e.g. L/R long against the PWM period for the rippl
 from __future__ import annotations
 
 import math
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -710,3 +711,20 @@ def test_generic_fuse_class_warns_in_the_summary():
     )
     res = run(text)
     assert "maker" in res.summary["fuse_warning"]
+
+
+def test_with_changes_on_power_stage_scenarios():
+    # The optional parts survive a change, are re-validated, and derived data is re-resolved.
+    root = Path(__file__).resolve().parents[1] / "scenarios"
+    pump = dcsim.load_scenario(root / "pump_cranking_dip_fuse.toml")
+    changed = pump.with_changes({"fuse.rated_current": "10 A", "supply.voltage": "13 V"})
+    assert changed.fuse.rated_current == 10.0 and pump.fuse.rated_current == 7.5
+    # the ISO profile starts and ends at the (new) nominal voltage
+    assert changed.supply_profile.voltages_V[0] == changed.supply_profile.voltages_V[-1] == 13.0
+    with pytest.raises(ScenarioError) as info:
+        pump.with_changes({"brake.resistance": "5 ohm"})  # a chopper needs its levels too
+    assert info.value.key == "brake.on_voltage"
+    battery = dcsim.load_scenario_text(BATTERY)
+    fuller = battery.with_changes({"battery.initial_state_of_charge": 0.9})
+    # Source: linear interpolation of the OCV table: 12.2 + (12.8 - 12.2) * 0.4 / 0.5
+    assert fuller.supply.voltage == pytest.approx(12.68)

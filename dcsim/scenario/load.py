@@ -502,6 +502,8 @@ def _convert(name: str, spec: KeySpec, value: Any, *, key: str, source: str) -> 
             key=key,
         )
     if spec.kind == "choice":
+        if value is None and spec.default is None:
+            return None  # an optional choice left out (only reachable from Python)
         accepted = ", ".join(f"'{c}'" for c in spec.choices)
         if not isinstance(value, str):
             raise ScenarioError(
