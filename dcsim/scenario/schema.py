@@ -554,7 +554,9 @@ class Control:
     Attributes
     ----------
     mode : str
-        ``"voltage"``: open loop, the bridge applies ``voltage`` clipped to the bus.
+        ``"voltage"``: open loop. The ideal bridge applies ``voltage`` clipped to the bus; the
+        averaged and switching bridges run at the duty ``voltage / supply.voltage`` (the
+        nominal supply voltage at the start), so their armature voltage follows the bus.
     voltage : float
         Commanded armature voltage [V].
     """
