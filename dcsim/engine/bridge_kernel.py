@@ -1115,6 +1115,21 @@ def build_schedule(q, md, period, n_grid, tau_from, prev_a, prev_b, override_a, 
 
 
 @njit(cache=True, error_model="numpy")
+def grid_schedule(n_grid, period, leg, bt, ba, bb, blim, bgrid, bedges):
+    """A period of ``n_grid`` nominal steps with both legs in state ``leg`` and no edges
+    (the averaged model, or a disabled switching bridge); returns the number of segments."""
+    h = period / n_grid
+    for j in range(n_grid + 1):
+        bt[j] = j * h if j < n_grid else period
+        ba[j] = leg
+        bb[j] = leg
+        blim[j] = 0
+        bgrid[j] = j
+        bedges[j] = 0
+    return n_grid
+
+
+@njit(cache=True, error_model="numpy")
 def switching_energy(x, md, q, forms, fsc, n_edges, acc):
     """Take the switching loss of ``n_edges`` leg transitions from the bus capacitor."""
     if q[Q_ESW] <= 0.0 or n_edges == 0:
@@ -1310,29 +1325,14 @@ def run_periods(x, md, q, period, n_grid, n_sub, duration, p_first, p_last, ev_t
                 )  # fmt: skip
                 q[Q_MOD] = m
             else:
-                nseg = n_grid
-                for j in range(n_grid + 1):
-                    bt[j] = j * h if j < n_grid else period
-                    ba[j] = LEG_OFF
-                    bb[j] = LEG_OFF
-                    blim[j] = 0
-                    bgrid[j] = j
-                    bedges[j] = 0
+                nseg = grid_schedule(n_grid, period, LEG_OFF, bt, ba, bb, blim, bgrid, bedges)
                 end_a = LEG_LOW
                 end_b = LEG_LOW
         elif p == p_first:
             # averaged: a period is n_grid nominal steps (one trace row), the same every time
-            nseg = n_grid
-            la = LEG_AVG
-            for j in range(n_grid + 1):
-                bt[j] = j * h if j < n_grid else period
-                ba[j] = la
-                bb[j] = la
-                blim[j] = 0
-                bgrid[j] = j
-                bedges[j] = 0
-            end_a = la
-            end_b = la
+            nseg = grid_schedule(n_grid, period, LEG_AVG, bt, ba, bb, blim, bgrid, bedges)
+            end_a = LEG_AVG
+            end_b = LEG_AVG
         limited_now = False
         k = 0
         while k < nseg:

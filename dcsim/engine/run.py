@@ -113,10 +113,25 @@ def energy_account(
         "kinetic_energy_change_J": float(kinetic),
         "stored_energy_change_J": float(stored),
     }
+    return with_residual(terms)
+
+
+def with_residual(terms: dict[str, float]) -> dict[str, float]:
+    """``terms`` plus ``energy_balance_residual_J``: the supply term minus all the others."""
     with np.errstate(over="ignore", invalid="ignore"):
         spent = sum(v for k, v in terms.items() if k != "energy_from_supply_J")
         terms["energy_balance_residual_J"] = terms["energy_from_supply_J"] - spent
     return terms
+
+
+def check_finite_totals(source: str, summary: dict) -> None:
+    """Refuse a summary whose numbers overflowed (SimulationError naming them)."""
+    bad = sorted(k for k, v in summary.items() if isinstance(v, float) and not np.isfinite(v))
+    if bad:
+        raise SimulationError(
+            f"{source}: the run's totals are not finite ({', '.join(bad)}): the values exceed "
+            "floating point; check the magnitudes and units of the scenario"
+        )
 
 
 def simulate(
@@ -163,12 +178,7 @@ def simulate(
         "min_bus_voltage_V": float(acc[L.A_BUS_MIN]),
     }
     summary.update(energy_account(ki, acc, xf, pf))
-    bad = sorted(k for k, v in summary.items() if not np.isfinite(v))
-    if bad:
-        raise SimulationError(
-            f"{scenario.source}: the run's totals are not finite ({', '.join(bad)}): the "
-            "values exceed floating point; check the magnitudes and units of the scenario"
-        )
+    check_finite_totals(scenario.source, summary)
     summary.update(
         {
             "duration_s": ki.duration_s,

@@ -9,7 +9,7 @@ import numpy as np
 from dcsim.engine import bridge_layout as B
 from dcsim.engine.assemble import BridgeInputs
 from dcsim.engine.bridge_kernel import CACHE_SLOTS, run_periods, start_run
-from dcsim.errors import SimulationError
+from dcsim.engine.run import check_finite_totals, with_residual
 
 CHUNK_STEPS = 2_000_000
 """Nominal steps per kernel call; between calls the run reports progress."""
@@ -94,10 +94,7 @@ def bridge_energy_account(bi: BridgeInputs, acc, xf, qf) -> dict[str, float]:
         "kinetic_energy_change_J": float(kinetic),
         "stored_energy_change_J": float(stored),
     }
-    with np.errstate(over="ignore", invalid="ignore"):
-        spent = sum(v for k, v in terms.items() if k != "energy_from_supply_J")
-        terms["energy_balance_residual_J"] = terms["energy_from_supply_J"] - spent
-    return terms
+    return with_residual(terms)
 
 
 def bridge_summary(sc, bi: BridgeInputs, acc, xf, qf, trips) -> dict:
@@ -113,12 +110,7 @@ def bridge_summary(sc, bi: BridgeInputs, acc, xf, qf, trips) -> dict:
         "min_bus_voltage_V": float(acc[B.A_BUS_MIN]),
     }
     summary.update(bridge_energy_account(bi, acc, xf, qf))
-    bad = sorted(k for k, v in summary.items() if not np.isfinite(v))
-    if bad:
-        raise SimulationError(
-            f"{sc.source}: the run's totals are not finite ({', '.join(bad)}): the values "
-            "exceed floating point; check the magnitudes and units of the scenario"
-        )
+    check_finite_totals(sc.source, summary)
     n = int(trips[0, 0])
     log = [
         {"time_s": float(trips[1 + k, 0]), "kind": TRIP_NAMES[int(trips[1 + k, 1])],
