@@ -21,7 +21,7 @@ def _blocks(lang: str) -> list[str]:
 
 
 def test_readme_scenario_block_loads_and_runs():
-    (block,) = _blocks("toml")
+    block = _blocks("toml")[0]
     sc = dcsim.load_scenario_text(block, source="README.md")
     res = dcsim.simulate(sc)
     s = res.summary
@@ -29,6 +29,30 @@ def test_readme_scenario_block_loads_and_runs():
     # Source: conservation of energy (the account of the contract closes).
     assert abs(s["energy_balance_residual_J"]) <= 1e-6 * largest
     assert res.trace["time_s"][-1] == sc.simulation.duration
+
+
+PLANT = """
+[simulation]
+duration = "0.5 s"
+[motor]
+resistance = "0.8 ohm"
+inductance = "1.2 mH"
+torque_constant = "0.06 N*m/A"
+inertia = "2e-4 kg*m^2"
+[supply]
+voltage = "48 V"
+"""
+
+
+def test_readme_control_block_runs_on_a_plant():
+    (block,) = [b for b in _blocks("toml") if "[control.current]" in b]
+    sc = dcsim.load_scenario_text(PLANT + block, source="README.md")
+    res = dcsim.simulate(sc)
+    # Source: conservation of energy (the account closes in closed loop too).
+    largest = max(abs(v) for k, v in res.summary.items() if k.endswith("_J") and "res" not in k)
+    assert abs(res.summary["energy_balance_residual_J"]) <= 1e-6 * largest
+    # the S-curve move of the block ends at its distance (the reference, exactly)
+    assert res.trace["reference_position_rad"][-1] == sc.control.reference.distance
 
 
 def test_readme_python_snippet_runs(tmp_path):

@@ -20,6 +20,7 @@ from hypothesis import strategies as st
 
 from dcsim.errors import ScenarioError
 from dcsim.scenario import KEYS, Scenario, changeable_keys, load_scenario_text
+from dcsim.scenario.schema import table_of
 from dcsim.units import to_si
 
 WINCH = """\
@@ -250,10 +251,10 @@ def check_invariants(sc: Scenario) -> None:
     """What every validated scenario satisfies, whatever its file looked like."""
     assert isinstance(sc, Scenario)
     for table, specs in KEYS.items():
-        if getattr(sc, table) is None:  # an optional part the file does not have
+        if table_of(sc, table) is None:  # an optional part the file does not have
             continue
         for key, spec in specs.items():
-            value = getattr(getattr(sc, table), key)
+            value = getattr(table_of(sc, table), key)
             if spec.kind == "quantity" and value is not None:
                 assert isinstance(value, float) and math.isfinite(value), (table, key, value)
                 if spec.constraint == "positive":

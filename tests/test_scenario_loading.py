@@ -25,7 +25,7 @@ from dcsim.scenario import (
     load_scenario_text,
 )
 from dcsim.scenario import load as load_module
-from dcsim.scenario.schema import DERIVED_FIELDS
+from dcsim.scenario.schema import CONTROLLED, CONTROLLED_UNITS, DERIVED_FIELDS
 from dcsim.units import UnitError, describe_dimension, registry, to_si
 
 PUMP = """\
@@ -335,9 +335,12 @@ def test_keys_table_matches_the_dataclasses():
     "name", [f"{t}.{k}" for t, ks in KEYS.items() for k, s in ks.items() if s.kind == "quantity"]
 )
 def test_every_key_example_is_accepted_by_its_own_key(name):
-    table, _, key = name.partition(".")
+    table, _, key = name.rpartition(".")
     spec: KeySpec = KEYS[table][key]
-    value = to_si(spec.example, spec.unit, noun=spec.noun, example=spec.example)
+    unit = spec.unit
+    if unit.startswith(CONTROLLED):  # reference values take the controlled quantity's unit
+        unit = CONTROLLED_UNITS["speed"] + unit[len(CONTROLLED) :]
+    value = to_si(spec.example, unit, noun=spec.noun, example=spec.example)
     assert {"positive": value > 0, "nonnegative": value >= 0, "any": True}[spec.constraint]
 
 
@@ -383,10 +386,10 @@ BAD = [
         ["unknown table 'motr'; did you mean 'motor'?"],
     ),
     (
-        "table not yet available",
+        "loop table without its sample time",
         PUMP + '\n[control.speed]\nkp = "0.05 A*s/rad"\n',
-        "control.speed",
-        ["unknown key 'control.speed'", "not available yet"],
+        "control.speed.sample_time",
+        ["missing key: expected a time", "found no sample_time"],
     ),
     (
         "top-level key",
@@ -479,16 +482,16 @@ BAD = [
         ["found 'Voltage'; did you mean 'voltage'?"],
     ),
     (
-        "mode of a later version",
-        edit(PUMP, 'mode = "voltage"', 'mode = "speed"'),
-        "control.mode",
-        ["one of 'voltage'", "found 'speed', which is not available yet"],
+        "closed-loop mode without its loops",
+        edit(PUMP, 'mode = "voltage"\nvoltage = "24 V"\n', 'mode = "speed"\n'),
+        "control.speed",
+        ["missing table: control mode 'speed' runs the loops speed -> current"],
     ),
     (
-        "loop table of a later version",
-        PUMP + '\n[control.speed]\nkp = "0.05 A*s/rad"\n',
-        "control.speed",
-        ["unknown key 'control.speed' (the speed loop)", "not available yet"],
+        "loop gain in the wrong unit",
+        PUMP + '\n[control.speed]\nkp = "0.05 V/A"\nsample_time = "1 ms"\nlimit = "5 A"\n',
+        "control.speed.kp",
+        ["expected a proportional gain", "found '0.05 V/A'"],
     ),
     (
         "text expected",
@@ -649,13 +652,22 @@ def test_malformed_toml_at_the_end(tmp_path):
     assert "malformed TOML" in str(err)
 
 
-def test_control_voltage_is_refused_outside_voltage_mode(monkeypatch):
-    # Closed-loop modes come later; the rule is checked now by making "speed" a valid choice.
-    mode = KEYS["control"]["mode"]
-    monkeypatch.setitem(
-        KEYS["control"], "mode", dataclasses.replace(mode, choices=("voltage", "speed"))
-    )
-    closed_loop = edit(PUMP, 'mode = "voltage"', 'mode = "speed"')
+LOOPS = """
+[control.current]
+kp = "2 V/A"
+ki = "1000 V/(A*s)"
+sample_time = "100 us"
+
+[control.speed]
+kp = "0.05 A*s/rad"
+ki = "1 A/rad"
+sample_time = "1 ms"
+limit = "5 A"
+"""
+
+
+def test_control_voltage_is_refused_outside_voltage_mode():
+    closed_loop = edit(PUMP, 'mode = "voltage"', 'mode = "speed"') + LOOPS
     with pytest.raises(ScenarioError) as info:
         load_scenario_text(closed_loop)
     assert info.value.key == "control.voltage"
@@ -751,7 +763,7 @@ def test_with_changes_accepts_nested_tables_and_resets_to_automatic():
         ({"supply.resistance": 0}, "supply.resistance", "charges the bus capacitor"),
         ({"simulation.duration": "0.2 s"}, "events[1].at", "event outside the run"),
         ({"simulation.duration": "50 us"}, "simulation.record_interval", "no longer than"),
-        ({"control.mode": "position"}, "control.mode", "not available yet"),
+        ({"control.mode": "position"}, "control.voltage", "expected no control.voltage"),
         ({"load.locked": "yes"}, "load.locked", "expected true or false"),
         ({"events": []}, "events", "events cannot be changed this way"),
         ({3: 1}, "", "expected a dotted key"),
@@ -780,7 +792,7 @@ def test_with_changes_rechecks_a_scenario_built_in_code():
 
 @pytest.mark.parametrize("name", [f"{t}.{k}" for t, ks in KEYS.items() for k in ks])
 def test_events_accept_exactly_the_changeable_keys(name):
-    table, _, key = name.partition(".")
+    table, _, key = name.rpartition(".")
     spec = KEYS[table][key]
     # Examples of bool and text keys are TOML literals already; the others are strings.
     literal = spec.example if spec.kind in ("bool", "text") else f'"{spec.example}"'

@@ -11,6 +11,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from dcsim.controllers.assemble import ControllerInputs, controller_inputs
 from dcsim.engine import layout as L
 from dcsim.errors import ScenarioError
 from dcsim.scenario.schema import Scenario
@@ -65,6 +66,24 @@ class KernelInputs:
     event_value: np.ndarray
     rows: int
     time_constants_s: dict
+    controller: ControllerInputs | None = None
+    steps_per_sample: int = 0
+
+
+def control_grid(sample_s: float, record_s: float, h_target: float) -> tuple[float, int, int]:
+    """A step that divides the controller's base sample and the record interval.
+
+    Returns ``(h, steps per sample, steps per row)``. The step is the largest division of the
+    common divisor of both times (to 1 ps) not above ``h_target``; when the two have no
+    useful common divisor, the record interval is rounded to whole steps of the sample grid.
+    """
+    tp, rp = round(sample_s * 1e12), round(record_s * 1e12)
+    g = math.gcd(tp, rp) * 1e-12 if tp > 0 and rp > 0 else 0.0
+    if g >= h_target / 100.0:
+        h = g / max(1, math.ceil(g / h_target - 1e-9))
+    else:
+        h = sample_s / max(1, math.ceil(sample_s / h_target - 1e-9))
+    return h, max(1, round(sample_s / h)), max(1, round(record_s / h))
 
 
 def parameter_vector(sc: Scenario) -> np.ndarray:
@@ -193,6 +212,10 @@ def assemble(sc: Scenario) -> KernelInputs:
         h_target = fastest / STEPS_PER_TIME_CONSTANT
         n_sub = max(1, math.ceil(record / h_target - 1e-9))
         h = record / n_sub
+    ctl = controller_inputs(sc)
+    n_ctl = 0
+    if ctl.closed_loop:
+        n_ctl, h, n_sub, record = _sampled_grid(sc, ctl.sample_s, h, record, fastest)
     n_steps = max(1, math.ceil(duration / h - 1e-9))
     if n_steps > MAX_STEPS:
         raise ScenarioError(
@@ -232,7 +255,28 @@ def assemble(sc: Scenario) -> KernelInputs:
         event_value=np.asarray(vals, dtype=np.float64),
         rows=rows,
         time_constants_s=taus,
+        controller=ctl,
+        steps_per_sample=n_ctl,
     )
+
+
+def _sampled_grid(
+    sc: Scenario, sample_s: float, h: float, record: float, fastest: float
+) -> tuple[int, float, int, float]:
+    """``(steps per sample, step, steps per row, record interval)`` of a closed-loop run."""
+    if sc.simulation.step is not None:
+        ratio = sample_s / h
+        if abs(ratio - round(ratio)) > 1e-9 * ratio or ratio < 1.0 - 1e-9:
+            raise ScenarioError(
+                f"expected a step that divides the fastest loop's sample time "
+                f"({sample_s:.6g} s) into whole steps, found {h:.6g} s",
+                source=sc.source,
+                key="simulation.step",
+            )
+        n_sub = max(1, round(record / h))
+        return round(ratio), h, n_sub, n_sub * h
+    h, n_ctl, n_sub = control_grid(sample_s, record, min(h, fastest / STEPS_PER_TIME_CONSTANT))
+    return n_ctl, h, n_sub, n_sub * h
 
 
 # --------------------------------------------------------------------------------------------
@@ -267,6 +311,8 @@ class BridgeInputs:
     time_constants_s: dict
     switching: bool
     fuse_model: object | None
+    controller: ControllerInputs | None = None
+    periods_per_sample: int = 0
 
 
 def bridge_parameters(sc: Scenario):
@@ -469,6 +515,17 @@ def assemble_bridge(sc: Scenario) -> BridgeInputs:
     if not switching:
         n_grid = n_sub  # a kernel "period" of the averaged model is one trace row
         period = record
+    ctl = controller_inputs(sc)
+    n_cp = 0
+    if ctl.closed_loop:
+        if switching:
+            n_cp = max(1, round(ctl.sample_s / period))
+        else:
+            # a kernel period is one controller base sample; rows on the same step grid
+            h, n_grid, n_sub = control_grid(ctl.sample_s, record, h_target)
+            period = n_grid * h
+            record = n_sub * h
+            n_cp = 1
     n_periods = max(1, math.ceil(duration / period - 1e-9))
     total_steps = n_periods * n_grid
     if total_steps > MAX_STEPS:
@@ -526,4 +583,6 @@ def assemble_bridge(sc: Scenario) -> BridgeInputs:
         time_constants_s=taus,
         switching=switching,
         fuse_model=fuse,
+        controller=ctl,
+        periods_per_sample=n_cp,
     )

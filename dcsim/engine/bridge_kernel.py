@@ -53,6 +53,8 @@ import math
 import numpy as np
 from numba import njit
 
+from dcsim.controllers.cascade import control_sample, copy_record
+from dcsim.controllers.layout import GREC, K_V_MEAS
 from dcsim.engine.bridge_layout import (
     A_BRAKE,
     A_BRAKE_PEAK_W,
@@ -467,30 +469,37 @@ def propagators(md, q, forms, fsc, tau, cache_key, cache_tau, cache_gen, cache_e
                 bvec, acc):  # fmt: skip
     """Slot of the cache holding ``exp(M tau/2)`` and ``exp(M tau)`` for the present regime.
 
-    Direct-mapped on (regime, length); an entry is valid for the generation ``gen`` of the
-    parameters (events bump it).
+    Direct-mapped on (regime, length, and for the averaged legs the modulation); an entry is
+    valid for the generation ``gen`` of the parameters (events bump it). ``cache_tau`` holds
+    the length in units of 1e-16 s and the modulation in units of 2^-53 (a closed loop
+    changes the modulation every sample; a duty quantised to timer counts repeats).
     """
     key = mode_key(md)
     # lengths that differ only by rounding of the time stamps (about 1e-20 s) share an entry:
     # the length is compared in units of 1e-16 s
     tq = int(tau * 1e16)
-    h = ((key * 2654435761) ^ (tq * 40503) ^ (tq >> 13)) & (CACHE_SLOTS - 1)
-    if cache_key[h] == key and cache_tau[h] == tq and cache_gen[h] == gen:
-        return h
+    mq = int(q[Q_MOD] * 9007199254740992.0) if md[M_LEG_A] == LEG_AVG else 0
+    h = ((key * 2654435761) ^ (tq * 40503) ^ (tq >> 13) ^ (mq * 97) ^ (mq >> 29)) & (
+        CACHE_SLOTS - 1
+    )
+    if cache_key[h] == key and cache_tau[h, 0] == tq and cache_tau[h, 1] == mq:
+        if cache_gen[h] == gen:
+            return h
     _fill_slot(md, q, forms, fsc, tau, cache_key, cache_tau, cache_gen, cache_e, gen, scratch,
-               bvec, acc, key, tq, h)  # fmt: skip
+               bvec, acc, key, tq, mq, h)  # fmt: skip
     return h
 
 
 @njit(cache=True, error_model="numpy")
 def _fill_slot(md, q, forms, fsc, tau, cache_key, cache_tau, cache_gen, cache_e, gen, scratch,
-               bvec, acc, key, tq, h):  # fmt: skip
+               bvec, acc, key, tq, mq, h):  # fmt: skip
     build_matrix(md, q, forms, fsc, scratch, bvec)
     half = expm(scratch * (0.5 * tau))
     cache_e[h, 0] = half
     cache_e[h, 1] = half @ half
     cache_key[h] = key
-    cache_tau[h] = tq
+    cache_tau[h, 0] = tq
+    cache_tau[h, 1] = mq
     cache_gen[h] = gen
     acc[A_CACHE_MISSES] += 1.0
 
@@ -834,6 +843,10 @@ def advance_general(x, md, q, forms, fsc, tau, t0, h_nom, cache_key, cache_tau, 
             for k in range(N_A):
                 x[k] = y1[k]
             x[S_ONE] = 1.0
+            if md[M_STUCK] == 0 and md[M_FSIGN] != 0 and x[S_W] * md[M_FSIGN] <= 0.0:
+                # a sliding shaft reaches rest exactly here (the located crossing leaves it
+                # a rounding step past zero, which would read as sliding back)
+                x[S_W] = 0.0
             t += sub
             remaining -= sub
             splits += 1
@@ -1204,11 +1217,15 @@ def apply_event(x, md, q, index, value, acc, trips, t):
 
 
 @njit(cache=True, error_model="numpy")
-def start_run(x, md, q, ev_t, ev_i, ev_v, counters, rec, acc, trips, ocv_soc, ocv_v, legs):
-    """Events at t = 0, the initial modes, peak trackers and trace row 0.
+def start_run(x, md, q, ev_t, ev_i, ev_v, counters, rec, acc, trips, ocv_soc, ocv_v, legs,
+              n_cp, cp, cs, rng, segs, crec):  # fmt: skip
+    """Events at t = 0, the controller's first sample, the initial modes, peak trackers and
+    trace row 0.
 
     ``counters`` (int64): next event, next row, next period, generation; ``legs`` (int64, 2):
-    the legs' intended states at the end of the last period.
+    the legs' intended states at the end of the last period. ``n_cp``: kernel periods per
+    controller base sample (0: open loop); ``cp``, ``cs``, ``rng``, ``segs``: the
+    controller's arrays; ``crec`` its trace columns.
     """
     forms = np.zeros((N_F, N_A))
     fsc = np.zeros(N_C)
@@ -1222,6 +1239,11 @@ def start_run(x, md, q, ev_t, ev_i, ev_v, counters, rec, acc, trips, ocv_soc, oc
         while seg < ocv_soc.shape[0] - 2 and x[S_SOC] > ocv_soc[seg + 1]:
             seg += 1
         set_segment(md, q, seg, ocv_soc, ocv_v)
+    if n_cp > 0:
+        compute_forms(md, q, forms, fsc)
+        vn = _dot(forms[F_VN], x)
+        q[Q_VCMD] = control_sample(0, 0.0, x[S_I], x[S_W], x[S_TH], vn, cp, cs, rng, segs)
+        q[Q_VNOM] = cs[GREC + K_V_MEAS]
     da, db, m = modulation(q)
     q[Q_MOD] = m
     if bridge_enabled(md):
@@ -1246,6 +1268,8 @@ def start_run(x, md, q, ev_t, ev_i, ev_v, counters, rec, acc, trips, ocv_soc, oc
     acc[A_FUSE_MELT_TIME] = -1.0
     acc[A_BYPASS_TIME] = -1.0 if md[M_PRE] == 1 else 0.0
     write_row(x, md, q, forms, fsc, 0.0, rec, 0, acc, 0.0, work)
+    if n_cp > 0:
+        copy_record(cs, crec, 0)
     counters[0] = k_ev
     counters[1] = 1
     counters[2] = 0
@@ -1255,12 +1279,15 @@ def start_run(x, md, q, ev_t, ev_i, ev_v, counters, rec, acc, trips, ocv_soc, oc
 @njit(cache=True, error_model="numpy")
 def run_periods(x, md, q, period, n_grid, n_sub, duration, p_first, p_last, ev_t, ev_i, ev_v,
                 counters, rec, acc, trips, ocv_soc, ocv_v, legs, cache_key, cache_tau,
-                cache_gen, cache_e):  # fmt: skip
+                cache_gen, cache_e, n_cp, cp, cs, rng, segs, crec):  # fmt: skip
     """Advance the run over periods ``p_first .. p_last`` (0-based) of length ``period``.
 
     For the switching model a period is one PWM period; for the averaged model it is one
-    nominal step. ``n_grid`` nominal steps make a period; a trace row every ``n_sub`` steps
-    (and at the end). Returns ``(status, time reached)``.
+    trace row, or one controller base sample in closed loop. ``n_grid`` nominal steps make a
+    period; a trace row every ``n_sub`` steps (and at the end). With ``n_cp > 0`` the
+    controller runs at the start of every ``n_cp``-th period, on the node voltage as the bus
+    measurement, and its voltage command becomes the duty ``command / measured bus voltage``
+    from that period on. Returns ``(status, time reached)``.
     """
     forms = np.zeros((N_F, N_A))
     fsc = np.zeros(N_C)
@@ -1316,6 +1343,25 @@ def run_periods(x, md, q, period, n_grid, n_sub, duration, p_first, p_last, ev_t
             if lo_ok and hi_ok:
                 md[M_TRIP] = 0
                 log_trip(trips, acc, t_p, TRIP_RESTART, vn)
+        if n_cp > 0 and p % n_cp == 0 and p > 0:
+            vn = _dot(forms[F_VN], x)
+            q[Q_VCMD] = control_sample(
+                p // n_cp, t_p, x[S_I], x[S_W], x[S_TH], vn, cp, cs, rng, segs
+            )
+            q[Q_VNOM] = cs[GREC + K_V_MEAS]
+            if not switching:
+                da, db, m = modulation(q)
+                if m != q[Q_MOD]:
+                    # the propagators are keyed by the modulation (no generation bump)
+                    q[Q_MOD] = m
+                    carry[0] = 0
+                    compute_forms(md, q, forms, fsc)
+                    st = update_modes(x, md, q, forms, fsc, t_p, acc, trips, ocv_soc, ocv_v)
+                    if st == -1:
+                        genbox[0] += 1
+                    elif st != STATUS_OK:
+                        status = st
+                        break
         enabled = bridge_enabled(md)
         if switching:
             if enabled:
@@ -1355,7 +1401,8 @@ def run_periods(x, md, q, period, n_grid, n_sub, duration, p_first, p_last, ev_t
                 # period); the other modes are still right if every guard holds at x
                 fk = mode_key(md) * 4 + md[M_TRIP] * 2 + md[M_MELTED]
                 fs_ = fk & (FORM_SLOTS - 1)
-                if fcache_key[fs_] == fk and fcache_gen[fs_] == genbox[0]:
+                # (averaged legs depend on the modulation, which a closed loop changes)
+                if fcache_key[fs_] == fk and fcache_gen[fs_] == genbox[0] and la != LEG_AVG:
                     for r_ in range(N_F):
                         for j_ in range(N_A):
                             forms[r_, j_] = fcache[fs_, r_, j_]
@@ -1478,6 +1525,8 @@ def run_periods(x, md, q, period, n_grid, n_sub, duration, p_first, p_last, ev_t
             if (jg >= 0 and (p * n_grid + jg) % n_sub == 0) or at_end:
                 if row < rec.shape[1]:
                     write_row(x, md, q, forms, fsc, t1, rec, row, acc, 1.0 * md[M_LIMITED], rowwork)
+                    if n_cp > 0:
+                        copy_record(cs, crec, row)
                     row += 1
             if at_end:
                 break
@@ -1489,6 +1538,8 @@ def run_periods(x, md, q, period, n_grid, n_sub, duration, p_first, p_last, ev_t
             break
     if status != STATUS_OK and row < rec.shape[1]:
         write_row(x, md, q, forms, fsc, t, rec, row, acc, 0.0, rowwork)
+        if n_cp > 0:
+            copy_record(cs, crec, row)
         row += 1
     counters[0] = k_ev
     counters[1] = row

@@ -39,6 +39,7 @@ import math
 import numpy as np
 from numba import njit
 
+from dcsim.controllers.cascade import control_sample, copy_record
 from dcsim.engine.expm import phi_blocks
 from dcsim.engine.layout import (
     A_BUS_MAX,
@@ -597,9 +598,31 @@ def apply_event(x, p, index, value, acc):
 
 
 @njit(cache=True, error_model="numpy")
+def control_now(k_base, t, x, p, has_cap, vb, cp, cs, rng, segs, bcache, valid, carry, b, amat):
+    """Run the controller's base sample ``k_base`` at ``t`` on the state ``x`` (bus voltage
+    ``vb`` [V]) and apply its voltage command; returns True when the command changed.
+
+    The forcing cached for every regime is rebuilt for the new command.
+    """
+    v = control_sample(k_base, t, x[X_CURRENT], x[X_SPEED], x[X_POSITION], vb, cp, cs, rng, segs)
+    if v == p[P_VCMD]:
+        return False
+    p[P_VCMD] = v
+    for r in range(N_REGIME):
+        for fi in range(3):
+            if valid[1 + fi, r]:
+                forcing(r, fi - 1.0, p, has_cap, b, amat)
+                for q in range(N_STATE):
+                    bcache[r, fi, q] = b[q]
+    carry[0] = 0
+    return True
+
+
+@njit(cache=True, error_model="numpy")
 def fast_steps(
     k, k_last, x, p, has_cap, h, n_steps, n_sub, duration, ev_t, k_ev, t,
     cache, bcache, valid, acc, work, carry, b, x1, xm, force, dgv, rec, row,
+    n_ctl, cp, cs, rng, segs, crec, amat,
 ):  # fmt: skip
     """Take steps ``k, k+1, ...`` while each is the common case: a whole nominal step on
     cached propagators, with no event and no regime change in it.
@@ -649,26 +672,49 @@ def fast_steps(
         t = t_end
         if not finite:
             return k, STATUS_NONFINITE, t, row
+        changed = False
+        if n_ctl > 0 and k % n_ctl == 0:
+            changed = control_now(
+                k // n_ctl, t, x, p, has_cap, work[2, 6], cp, cs, rng, segs, bcache, valid,
+                carry, b, amat,
+            )  # fmt: skip
         if k % n_sub == 0 or k == n_steps:
-            # the end point's bus quantities are in work[2] (same regime: no guard crossed)
-            write_row(x, p, r, fsign, t, work[2, 6], work[2, 7], work[2, 8], work[2, 9], rec, row)
+            if changed:
+                record_row(x, p, has_cap, t, rec, row)
+            else:
+                # the end point's bus quantities are in work[2] (same regime: no guard crossed)
+                write_row(
+                    x, p, r, fsign, t, work[2, 6], work[2, 7], work[2, 8], work[2, 9], rec, row
+                )
+            if n_ctl > 0:
+                copy_record(cs, crec, row)
             row += 1
         k += 1
     return k, STATUS_OK, t, row
 
 
 @njit(cache=True, error_model="numpy")
-def start_run(p, x, has_cap, ev_t, ev_i, ev_v, counters, rec, acc):
-    """Apply the events at t = 0, set the peak trackers and write trace row 0.
+def start_run(p, x, has_cap, ev_t, ev_i, ev_v, counters, rec, acc, n_ctl, cp, cs, rng, segs, crec):
+    """Apply the events at t = 0, run the controller's first sample, set the peak trackers
+    and write trace row 0.
 
     ``p`` and ``x`` are the run's working parameter and state vectors (changed in place);
     ``counters`` (int64, 2) holds the next event and the next trace row between calls.
+    ``n_ctl`` is the number of steps per controller base sample (0: open loop); ``cp``,
+    ``cs``, ``rng``, ``segs`` the controller's arrays and ``crec`` its trace columns.
     """
     n_ev = ev_t.shape[0]
     k_ev = 0
     while k_ev < n_ev and ev_t[k_ev] <= 0.0:
         apply_event(x, p, ev_i[k_ev], ev_v[k_ev], acc)
         k_ev += 1
+    if n_ctl > 0:
+        r0, fs0 = regime_of(x, p, has_cap)
+        vb0, va0, ib0, is0 = bus_state(x, p, has_cap, r0)
+        p[P_VCMD] = control_sample(
+            0, 0.0, x[X_CURRENT], x[X_SPEED], x[X_POSITION], vb0, cp, cs, rng, segs
+        )
+        copy_record(cs, crec, 0)
     r0, fs0 = regime_of(x, p, has_cap)
     vb0, va0, ib0, is0 = bus_state(x, p, has_cap, r0)
     acc[A_BUS_MAX] = vb0
@@ -696,6 +742,12 @@ def run_steps(
     counters,
     rec,
     acc,
+    n_ctl,
+    cp,
+    cs,
+    rng,
+    segs,
+    crec,
 ):
     """Advance the run over steps ``k_first .. k_last`` (1-based, inclusive).
 
@@ -727,6 +779,10 @@ def run_steps(
         Trace columns.
     acc : float array (N_ACC,)
         Integrals and peaks.
+    n_ctl, cp, cs, rng, segs, crec
+        Steps per controller base sample (0: open loop) and the controller's arrays
+        (:mod:`dcsim.controllers.layout`); the controller runs at the end of every
+        ``n_ctl``-th step.
 
     Returns
     -------
@@ -758,6 +814,7 @@ def run_steps(
         k, status, t, row = fast_steps(
             k, k_last, x, p, has_cap, h, n_steps, n_sub, duration, ev_t, k_ev, t,
             cache, bcache, valid, acc, work, carry, b, x1, xm, force, dgv, rec, row,
+            n_ctl, cp, cs, rng, segs, crec, amat,
         )  # fmt: skip
         if status != STATUS_OK or k > k_last:
             break
@@ -784,12 +841,23 @@ def run_steps(
         if status != STATUS_OK:
             break
         t = t_end
+        if n_ctl > 0 and k % n_ctl == 0:
+            r, fsign = regime_of(x, p, has_cap)
+            vb, va, ib, isup = bus_state(x, p, has_cap, r)
+            control_now(
+                k // n_ctl, t, x, p, has_cap, vb, cp, cs, rng, segs, bcache, valid, carry, b,
+                amat,
+            )  # fmt: skip
         if k % n_sub == 0 or k == n_steps:
             record_row(x, p, has_cap, t, rec, row)
+            if n_ctl > 0:
+                copy_record(cs, crec, row)
             row += 1
         k += 1
     if status != STATUS_OK and row < rec.shape[1]:
         record_row(x, p, has_cap, t, rec, row)
+        if n_ctl > 0:
+            copy_record(cs, crec, row)
         row += 1
     counters[0] = k_ev
     counters[1] = row

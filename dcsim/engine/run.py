@@ -10,6 +10,7 @@ from dcsim.engine import layout as L
 from dcsim.engine.assemble import KernelInputs, assemble
 from dcsim.engine.kernel import run_steps, start_run
 from dcsim.errors import SimulationError
+from dcsim.results.control import control_columns, control_summary
 from dcsim.results.trace import SimulationResult, Summary, Trace
 from dcsim.scenario.schema import Scenario
 
@@ -41,19 +42,31 @@ def run_inputs(
     x = ki.state0.copy()
     counters = np.zeros(2, dtype=np.int64)
     args = (ki.event_time_s, ki.event_index, ki.event_value)
-    start_run(p, x, ki.has_capacitor, *args, counters, rec, acc)
+    ctl, crec = controller_arrays(ki.controller, ki.steps_per_sample, ki.rows)
+    start_run(p, x, ki.has_capacitor, *args, counters, rec, acc, ki.steps_per_sample, *ctl, crec)
     status, t_stop = L.STATUS_OK, 0.0
     for k_first in range(1, ki.n_steps + 1, CHUNK_STEPS):
         k_last = min(k_first + CHUNK_STEPS - 1, ki.n_steps)
         status, t_stop = run_steps(
             p, x, ki.has_capacitor, ki.step_s, k_first, k_last, ki.n_steps,
             ki.steps_per_row, ki.duration_s, *args, counters, rec, acc,
+            ki.steps_per_sample, *ctl, crec,
         )  # fmt: skip
         if progress is not None:
             progress(k_last / ki.n_steps)
         if status != L.STATUS_OK:
             break
-    return int(status), float(t_stop), rec[:, : counters[1]], acc, x, p
+    n = counters[1]
+    return int(status), float(t_stop), rec[:, :n], acc, x, p, crec[:, :n]
+
+
+def controller_arrays(ctl, active: int, rows: int):
+    """Working copies of the controller arrays ``(cp, cs, rng, segments)`` and the trace
+    columns it fills (none in open loop)."""
+    from dcsim.controllers.layout import N_CREC
+
+    crec = np.zeros((N_CREC if active else 0, rows if active else 1))
+    return (ctl.params.copy(), ctl.state0.copy(), ctl.rng0.copy(), ctl.segments), crec
 
 
 def _stop_message(sc: Scenario, ki: KernelInputs, status: int, t_stop: float) -> str:
@@ -163,10 +176,11 @@ def simulate(
     if scenario.bridge.model != "ideal":
         return _simulate_bridge(scenario, progress)
     ki = assemble(scenario)
-    status, t_stop, rec, acc, xf, pf = run_inputs(ki, progress)
+    status, t_stop, rec, acc, xf, pf, crec = run_inputs(ki, progress)
     if status != L.STATUS_OK:
         raise SimulationError(_stop_message(scenario, ki, status, t_stop))
     columns = {name: rec[k] for k, name in enumerate(L.RECORD_NAMES)}
+    columns.update(control_columns(scenario, crec))
     summary: dict[str, float | int | str] = {
         "peak_current_A": float(acc[L.A_PEAK_I]),
         "peak_current_time_s": float(acc[L.A_PEAK_I_TIME]),
@@ -188,6 +202,8 @@ def simulate(
             "located_regime_changes": int(acc[L.A_SPLITS]),
         }
     )
+    if ki.steps_per_sample:
+        summary.update(control_summary(scenario, columns, ki.controller.sample_s))
     return SimulationResult(
         scenario=scenario,
         trace=Trace(columns),
@@ -207,11 +223,14 @@ def _simulate_bridge(
     from dcsim.engine.run_bridge import bridge_summary, run_bridge_inputs, stop_message
 
     bi = assemble_bridge(scenario)
-    status, t_stop, rec, acc, xf, qf, trips = run_bridge_inputs(bi, progress)
+    status, t_stop, rec, acc, xf, qf, trips, crec = run_bridge_inputs(bi, progress)
     if status != B.STATUS_OK:
         raise SimulationError(stop_message(scenario.source, status, t_stop))
     columns = {name: rec[k] for k, name in enumerate(B.RECORD_NAMES)}
+    columns.update(control_columns(scenario, crec))
     summary = bridge_summary(scenario, bi, acc, xf, qf, trips)
+    if bi.periods_per_sample:
+        summary.update(control_summary(scenario, columns, bi.controller.sample_s))
     return SimulationResult(
         scenario=scenario,
         trace=Trace(columns),

@@ -9,7 +9,7 @@ import numpy as np
 from dcsim.engine import bridge_layout as B
 from dcsim.engine.assemble import BridgeInputs
 from dcsim.engine.bridge_kernel import CACHE_SLOTS, run_periods, start_run
-from dcsim.engine.run import check_finite_totals, with_residual
+from dcsim.engine.run import check_finite_totals, controller_arrays, with_residual
 
 CHUNK_STEPS = 2_000_000
 """Nominal steps per kernel call; between calls the run reports progress."""
@@ -36,12 +36,16 @@ def run_bridge_inputs(bi: BridgeInputs, progress: Callable[[float], None] | None
     counters = np.zeros(4, dtype=np.int64)
     cache = (
         np.full(CACHE_SLOTS, -1, dtype=np.int64),
-        np.zeros(CACHE_SLOTS, dtype=np.int64),
+        np.zeros((CACHE_SLOTS, 2), dtype=np.int64),
         np.zeros(CACHE_SLOTS, dtype=np.int64),
         np.zeros((CACHE_SLOTS, 2, B.N_A, B.N_A)),
     )
     ev = (bi.event_time_s, bi.event_index, bi.event_value)
-    start_run(x, md, q, *ev, counters, rec, acc, trips, bi.ocv_soc, bi.ocv_V, legs)
+    ctl, crec = controller_arrays(bi.controller, bi.periods_per_sample, bi.rows)
+    n_cp = bi.periods_per_sample
+    start_run(
+        x, md, q, *ev, counters, rec, acc, trips, bi.ocv_soc, bi.ocv_V, legs, n_cp, *ctl, crec
+    )
     per_chunk = max(1, CHUNK_STEPS // bi.n_grid)
     status, t_stop = B.STATUS_OK, 0.0
     for p_first in range(0, bi.n_periods, per_chunk):
@@ -49,12 +53,14 @@ def run_bridge_inputs(bi: BridgeInputs, progress: Callable[[float], None] | None
         status, t_stop = run_periods(
             x, md, q, bi.period_s, bi.n_grid, bi.steps_per_row, bi.duration_s, p_first,
             p_last, *ev, counters, rec, acc, trips, bi.ocv_soc, bi.ocv_V, legs, *cache,
+            n_cp, *ctl, crec,
         )  # fmt: skip
         if progress is not None:
             progress((p_last + 1) / bi.n_periods)
         if status != B.STATUS_OK:
             break
-    return int(status), float(t_stop), rec[:, : counters[1]], acc, x, q, trips
+    n = counters[1]
+    return int(status), float(t_stop), rec[:, :n], acc, x, q, trips, crec[:, :n]
 
 
 def stop_message(source: str, status: int, t_stop: float) -> str:

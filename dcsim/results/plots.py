@@ -103,13 +103,33 @@ def _legend(ax: Axes) -> None:
     )
 
 
+def _draw_command(ax: Axes, result: SimulationResult, time: _TimeAxis, column: str) -> None:
+    """The loop's command (held between samples) over the true value, when there is one."""
+    if column in result.trace:
+        ax.step(
+            time.values,
+            result.trace[column],
+            where="post",
+            color=_ORANGE,
+            linewidth=1.0,
+            linestyle=(0, (4, 1.5)),
+            label="command",
+        )
+
+
 def _draw_current(ax: Axes, result: SimulationResult, time: _TimeAxis) -> None:
-    ax.plot(time.values, result.trace["current_A"], color=_BLUE, linewidth=1.2)
+    ax.plot(time.values, result.trace["current_A"], color=_BLUE, linewidth=1.2, label="actual")
+    _draw_command(ax, result, time, "current_command_A")
     _style(ax, "armature\ncurrent [A]")
+    if "current_command_A" in result.trace:
+        _legend(ax)
 
 
 def _draw_speed(ax: Axes, result: SimulationResult, time: _TimeAxis) -> None:
-    ax.plot(time.values, result.trace["speed_rad_s"], color=_BLUE, linewidth=1.2)
+    ax.plot(time.values, result.trace["speed_rad_s"], color=_BLUE, linewidth=1.2, label="actual")
+    if result.scenario.control.mode in ("speed", "position"):
+        _draw_command(ax, result, time, "speed_command_rad_s")
+        _legend(ax)
     _style(ax, "speed [rad/s]")
     rpm = ax.secondary_yaxis(
         "right", functions=(lambda w: w / RAD_S_PER_RPM, lambda n: n * RAD_S_PER_RPM)
@@ -172,6 +192,33 @@ def _draw_supply(ax: Axes, result: SimulationResult, time: _TimeAxis) -> None:
     _legend(ax)
 
 
+def _draw_position(ax: Axes, result: SimulationResult, time: _TimeAxis) -> None:
+    """Shaft angle against the position reference; the following error on the right."""
+    tr = result.trace
+    ax.plot(time.values, tr["position_rad"], color=_BLUE, linewidth=1.2, label="actual")
+    ax.plot(
+        time.values,
+        tr["reference_position_rad"],
+        color=_ORANGE,
+        linewidth=1.0,
+        linestyle=(0, (4, 1.5)),
+        label="reference",
+    )
+    _style(ax, "angle [rad]")
+    err = ax.twinx()
+    err.plot(
+        time.values,
+        (tr["reference_position_rad"] - tr["position_rad"]) * 1e3,
+        color=_PURPLE,
+        linewidth=0.9,
+    )
+    err.set_ylabel("following\nerror [mrad]", color=_PURPLE)
+    err.tick_params(colors=_PURPLE, labelsize=8)
+    for side in ("top", "left"):
+        err.spines[side].set_visible(False)
+    _legend(ax)
+
+
 _Drawer = Callable[[Axes, SimulationResult, _TimeAxis], None]
 
 _PANELS: tuple[tuple[str, _Drawer], ...] = (
@@ -184,12 +231,17 @@ _PANELS: tuple[tuple[str, _Drawer], ...] = (
 
 _SUPPLY_PANEL: tuple[str, _Drawer] = ("supply", _draw_supply)
 """Added for the averaged and switching bridge models (their trace has the bus circuit)."""
+_POSITION_PANEL: tuple[str, _Drawer] = ("position", _draw_position)
+"""Added in position control (the reference and the following error)."""
 
 
 def _panels(result: SimulationResult) -> tuple[tuple[str, _Drawer], ...]:
+    panels = _PANELS
+    if "reference_position_rad" in result.trace:
+        panels = (_POSITION_PANEL,) + panels
     if "brake_current_A" in result.trace:
-        return _PANELS + (_SUPPLY_PANEL,)
-    return _PANELS
+        panels = panels + (_SUPPLY_PANEL,)
+    return panels
 
 
 def _mark_events(axes: Sequence[Axes], markers: list[_Marker], time: _TimeAxis) -> None:
@@ -300,7 +352,7 @@ def plot_quantity(result: SimulationResult, name: str) -> Figure:
 
 PLOT_FILES: tuple[str, ...] = ("overview.png",) + tuple(f"{stem}.png" for stem, _ in _PANELS)
 """File names :func:`save_plots` writes, in order (plus ``supply.png`` for the averaged and
-switching bridge models)."""
+switching bridge models, and ``position.png`` in position control)."""
 
 
 def save_plots(result: SimulationResult, out_dir_tmp: str | Path) -> list[Path]:

@@ -37,6 +37,8 @@ else:  # pragma: no cover - Python 3.10
 
 from dcsim.errors import ScenarioError
 from dcsim.scenario.schema import (
+    CONTROLLED,
+    CONTROLLED_UNITS,
     KEYS,
     OPTIONAL_TABLES,
     POWER_STAGE_TABLES,
@@ -47,18 +49,24 @@ from dcsim.scenario.schema import (
     Brake,
     Bridge,
     Control,
+    CurrentLoop,
     Event,
     Fuse,
     KeySpec,
     Load,
     Motor,
+    PositionLoop,
     Precharge,
     Protection,
+    Reference,
     Scenario,
+    Sensors,
     Simulation,
+    SpeedLoop,
     Supply,
     SupplyProfile,
     changeable_keys,
+    table_of,
 )
 from dcsim.units import UnitError, describe_value, to_si
 
@@ -78,6 +86,11 @@ _TABLE_TYPES: dict[str, type] = {
     "battery": Battery,
     "fuse": Fuse,
     "supply_profile": SupplyProfile,
+    "control.current": CurrentLoop,
+    "control.speed": SpeedLoop,
+    "control.position": PositionLoop,
+    "control.reference": Reference,
+    "sensors": Sensors,
 }
 """Dataclass of each table; its fields are the table's keys in :data:`KEYS`."""
 
@@ -85,10 +98,6 @@ _EVENTS = "events"
 _EVENT_FIELDS = ("at", "set")
 
 _PLANNED_KEYS: dict[str, str] = {
-    "control.current": "the current loop",
-    "control.speed": "the speed loop",
-    "control.position": "the position loop",
-    "control.reference": "the loop reference",
     "motor.field_resistance": "wound-field machines",
     "motor.field_inductance": "wound-field machines",
     "motor.mutual_inductance": "wound-field machines",
@@ -97,7 +106,6 @@ _PLANNED_KEYS: dict[str, str] = {
 """Names the contract announces that this version does not read yet (for clearer messages)."""
 
 _PLANNED_CHOICES: dict[str, tuple[str, ...]] = {
-    "control.mode": ("current", "speed", "position"),
     "motor.kind": ("separately_excited", "shunt", "series", "compound"),
 }
 """Choices the contract announces that this version does not accept yet."""
@@ -212,17 +220,22 @@ def apply_changes(scenario: Scenario, changes: Mapping[str, Any]) -> Scenario:
             source=source,
         )
     # The scenario's own values are checked again too: it may have been built in code.
-    present = {t for t in KEYS if getattr(scenario, t) is not None}
+    present = {t for t in KEYS if table_of(scenario, t) is not None}
     read = _Read(tables=present)
+    mode = scenario.control.mode
     for name in _all_keys():
-        table, _, key = name.partition(".")
+        table, _, key = name.rpartition(".")
         if table not in present:
             continue
-        value = getattr(getattr(scenario, table), key)
-        read.values[name] = _convert(name, _spec(name), value, key=name, source=source)
+        value = getattr(table_of(scenario, table), key)
+        read.values[name] = _convert(name, _spec(name), value, key=name, source=source, mode=mode)
     read.events = [_recheck_event(i, ev, source) for i, ev in enumerate(scenario.events)]
     changed: dict[str, Any] = {}
-    for name, value in _flatten(changes, where="", source=source):
+    flat = list(_flatten(changes, where="", source=source))
+    for name, value in flat:
+        if name == "control.mode" and isinstance(value, str):
+            mode = value
+    for name, value in flat:
         spec = _spec(name)
         if spec is None and name == _EVENTS:
             raise ScenarioError(
@@ -233,9 +246,9 @@ def apply_changes(scenario: Scenario, changes: Mapping[str, Any]) -> Scenario:
             )
         if spec is None:
             raise _unknown_key(name, source=source, key=name)
-        changed[name] = _convert(name, spec, value, key=name, source=source)
+        changed[name] = _convert(name, spec, value, key=name, source=source, mode=mode)
         read.shown[name] = describe_value(value)
-        read.tables.add(name.partition(".")[0])
+        read.tables.add(name.rpartition(".")[0])
     read.values.update(changed)
     # Keys count as written when changed now or when they differ from their default.
     read.given = set(changed) | {
@@ -334,28 +347,38 @@ def _lower_first(text: str) -> str:
 def _read_document(document: dict[str, Any], source: str) -> _Read:
     """Stage 1: check names and convert values, in file order."""
     read = _Read()
+    control = document.get("control")
+    mode = control.get("mode", "voltage") if isinstance(control, dict) else "voltage"
     for table, body in document.items():
         if table == _EVENTS:
             read.events = _read_events(body, source)
             continue
         if table not in KEYS:
             raise _unknown_top_level(table, body, source)
-        if not isinstance(body, dict):
-            raise ScenarioError(
-                f"expected a table [{table}], found {describe_value(body, with_kind=True)}",
-                source=source,
-                key=table,
-            )
-        read.tables.add(table)
-        for key, value in body.items():
-            name = f"{table}.{key}"
-            spec = KEYS[table].get(key)
-            if spec is None:
-                raise _unknown_key(name, source=source, key=name)
-            read.values[name] = _convert(name, spec, value, key=name, source=source)
-            read.shown[name] = describe_value(value)
-            read.given.add(name)
+        _read_table(read, table, body, source, mode)
     return read
+
+
+def _read_table(read: _Read, table: str, body: Any, source: str, mode: Any) -> None:
+    """Read one table; sub-tables named in :data:`KEYS` (``[control.speed]``) recursively."""
+    if not isinstance(body, dict):
+        raise ScenarioError(
+            f"expected a table [{table}], found {describe_value(body, with_kind=True)}",
+            source=source,
+            key=table,
+        )
+    read.tables.add(table)
+    for key, value in body.items():
+        name = f"{table}.{key}"
+        spec = KEYS[table].get(key)
+        if spec is None and name in KEYS:
+            _read_table(read, name, value, source, mode)
+            continue
+        if spec is None:
+            raise _unknown_key(name, source=source, key=name)
+        read.values[name] = _convert(name, spec, value, key=name, source=source, mode=mode)
+        read.shown[name] = describe_value(value)
+        read.given.add(name)
 
 
 def _read_events(body: Any, source: str) -> list[_ReadEvent]:
@@ -464,10 +487,7 @@ def _flatten(body: Mapping[Any, Any], *, where: str, source: str) -> Iterator[tu
                 source=source,
                 key=where.rstrip("."),
             )
-        if first in KEYS and isinstance(value, Mapping):
-            pairs = [(f"{first}.{k}", v) for k, v in value.items()]
-        else:
-            pairs = [(first, value)]
+        pairs = list(_descend(first, value))
         for name, item in pairs:
             if name in seen:
                 raise ScenarioError(
@@ -479,16 +499,38 @@ def _flatten(body: Mapping[Any, Any], *, where: str, source: str) -> Iterator[tu
             yield name, item
 
 
-def _convert(name: str, spec: KeySpec, value: Any, *, key: str, source: str) -> Any:
+def _descend(name: str, value: Any) -> Iterator[tuple[str, Any]]:
+    """``(dotted key, value)`` pairs of a table given as a nested mapping."""
+    if name in KEYS and isinstance(value, Mapping):
+        for k, v in value.items():
+            yield from _descend(f"{name}.{k}", v)
+    else:
+        yield name, value
+
+
+def _convert(
+    name: str, spec: KeySpec, value: Any, *, key: str, source: str, mode: Any = "voltage"
+) -> Any:
     """Check the value of key ``name`` against its spec; return it in SI (or bool / str).
 
-    ``key`` is how messages name the place (``events[1].set.load.torque``).
+    ``key`` is how messages name the place (``events[1].set.load.torque``); ``mode`` (the
+    control mode) gives the unit of reference values.
     """
     if spec.kind == "quantity":
         if value is None and spec.default is None:
             return None  # only reachable from Python: "let dcsim choose"
+        unit = spec.unit
+        if unit is not None and unit.startswith(CONTROLLED):
+            if mode not in CONTROLLED_UNITS:
+                raise ScenarioError(
+                    "expected a [control.reference] only in a closed-loop control mode "
+                    f"(current, speed or position), found control.mode = {describe_value(mode)}",
+                    source=source,
+                    key=key,
+                )
+            unit = CONTROLLED_UNITS[mode] + unit[len(CONTROLLED) :]
         try:
-            si = to_si(value, spec.unit, noun=spec.noun, example=spec.example)
+            si = to_si(value, unit, noun=spec.noun, example=_example(spec, mode))
         except UnitError as err:
             raise ScenarioError(err.detail, source=source, key=key) from None
         return _check_sign(spec, si, value, key=key, source=source)
@@ -600,12 +642,24 @@ def _check_sign(spec: KeySpec, si: float, value: Any, *, key: str, source: str) 
 # --------------------------------------------------------------------------------------------
 
 
+def _example(spec: KeySpec, mode: Any) -> str:
+    """The spec's example, in the controlled quantity's unit for reference values."""
+    if spec.unit is not None and spec.unit.startswith(CONTROLLED):
+        per_s = spec.unit != CONTROLLED
+        return {
+            "current": "2 A/s" if per_s else "2 A",
+            "speed": "2000 rad/s^2" if per_s else "200 rad/s",
+            "position": "50 rad/s" if per_s else "10 rad",
+        }.get(str(mode), spec.example)
+    return spec.example
+
+
 def _all_keys() -> list[str]:
     return [f"{table}.{key}" for table, keys in KEYS.items() for key in keys]
 
 
 def _spec(name: str) -> KeySpec | None:
-    table, _, key = name.partition(".")
+    table, _, key = name.rpartition(".")
     return KEYS.get(table, {}).get(key)
 
 
@@ -619,7 +673,7 @@ def _unknown_top_level(name: str, body: Any, source: str) -> ScenarioError:
             key=name,
         )
     if _spec(name) is not None:
-        table, _, key = name.partition(".")
+        table, _, key = name.rpartition(".")
         return ScenarioError(
             f"unknown key '{name}' at the top level; write {key} inside [{table}], or "
             f"{name} without quotes",
@@ -630,7 +684,7 @@ def _unknown_top_level(name: str, body: Any, source: str) -> ScenarioError:
     if as_key:
         return ScenarioError(
             f"unknown key '{name}' at the top level; did you mean '{as_key[0]}' (key {name} "
-            f"inside [{as_key[0].partition('.')[0]}])?",
+            f"inside [{as_key[0].rpartition('.')[0]}])?",
             source=source,
             key=name,
         )
@@ -661,14 +715,14 @@ def _unknown_key(
         )
     restricted = candidates is not None  # e.g. the keys events may change: list them all
     candidates = candidates if candidates is not None else _all_keys()
-    table, _, short = name.partition(".")
-    same_table = [c for c in candidates if c.partition(".")[0] == table]
+    table, _, short = name.rpartition(".")
+    same_table = [c for c in candidates if c.rpartition(".")[0] == table]
     others = [c for c in candidates if c not in same_table]
     if table in KEYS:
         # A misspelt key of this table, else the same key written in the wrong table.
-        by_short = {c.partition(".")[2]: c for c in reversed(others)}
-        by_short.update({c.partition(".")[2]: c for c in same_table})
-        close = difflib.get_close_matches(short, [c.partition(".")[2] for c in same_table])
+        by_short = {c.rpartition(".")[2]: c for c in reversed(others)}
+        by_short.update({c.rpartition(".")[2]: c for c in same_table})
+        close = difflib.get_close_matches(short, [c.rpartition(".")[2] for c in same_table])
         close = close or difflib.get_close_matches(short, list(by_short), cutoff=0.8)
         suggestion = by_short[close[0]] if close else ""
     else:  # a misspelt table name: compare whole dotted names
@@ -775,6 +829,7 @@ def _assemble(read: _Read, source: str, *, result_source: str) -> Scenario:
     present = {t for t in OPTIONAL_TABLES if t in read.tables}
     problem = _power_stage_problem(values, present, read.given, show)
     problem = problem or _first_problem(values, read.given, show)
+    problem = problem or _control_problem(values, present, read.given, show)
     if problem is not None:
         raise ScenarioError(problem[1], source=source, key=problem[0])
 
@@ -806,6 +861,11 @@ def _assemble(read: _Read, source: str, *, result_source: str) -> Scenario:
             continue
         tables[table] = cls(**{key: values[f"{table}.{key}"] for key in KEYS[table]})
     _resolve_files(tables, source)
+    import dataclasses
+
+    for table in sorted((t for t in tables if "." in t), key=lambda t: -t.count(".")):
+        parent, _, field_name = table.rpartition(".")
+        tables[parent] = dataclasses.replace(tables[parent], **{field_name: tables.pop(table)})
     return Scenario(
         **tables,
         events=tuple(Event(at=e.at, changes=e.changes) for e in ordered),
@@ -965,6 +1025,175 @@ def _power_stage_problem(
     return None
 
 
+_LOOPS_OF_MODE = {
+    "voltage": (),
+    "current": ("current",),
+    "speed": ("speed", "current"),
+    "position": ("position", "speed", "current"),
+}
+_REFERENCE_KEYS = {
+    "step": ({"value"}, {"initial", "at"}),
+    "ramp": ({"value"}, {"initial", "at", "rate", "ramp_time"}),
+    "trapezoid": ({"distance", "speed", "acceleration"}, {"initial", "at", "deceleration"}),
+    "s-curve": ({"distance", "speed", "acceleration", "jerk"}, {"initial", "at"}),
+    "table": ({"file"}, set()),
+}
+"""Required and allowed keys of each reference kind (besides ``kind``)."""
+
+
+def _control_problem(
+    state: dict[str, Any], present: set[str], given: set[str], show: _Show
+) -> _Problem:
+    """Rules of the closed-loop controller, its loops, reference and sensors."""
+    mode = state["control.mode"]
+    loops = _LOOPS_OF_MODE[mode]
+    if mode == "voltage":
+        for table in ("control.reference", "sensors"):
+            if table in present:
+                return (
+                    table,
+                    f"expected no [{table}] in control mode 'voltage' (open loop: no controller "
+                    "reads it); set control.mode to 'current', 'speed' or 'position', found "
+                    f"[{table}]",
+                )
+        return None
+    for loop in loops:
+        if f"control.{loop}" not in present:
+            return (
+                f"control.{loop}",
+                f"missing table: control mode '{mode}' runs the loops "
+                f"{' -> '.join(loops)}; expected a [control.{loop}] table with kp, ki and "
+                f"sample_time, found none",
+            )
+    times = {loop: state[f"control.{loop}.sample_time"] for loop in loops}
+    fastest = min(times.values())
+    for loop in loops:
+        t = f"control.{loop}"
+        problem = _loop_problem(t, state, given, show)
+        if problem is not None:
+            return problem
+        ratio = times[loop] / fastest
+        if abs(ratio - round(ratio)) > 1e-9 * ratio:
+            return (
+                f"{t}.sample_time",
+                "expected a whole multiple of the fastest loop's sample time "
+                f"({fastest:.6g} s), found {show(f'{t}.sample_time')}",
+            )
+    if state["bridge.model"] == "switching":
+        per = fastest * state["bridge.frequency"]
+        if per < 1.0 - 1e-9 or abs(per - round(per)) > 1e-9 * per:
+            name = min(times, key=times.get)
+            return (
+                f"control.{name}.sample_time",
+                "expected a whole number of PWM periods (bridge.frequency "
+                f"{show('bridge.frequency')}: {1.0 / state['bridge.frequency']:.6g} s) for "
+                "the fastest loop (the switching bridge samples at PWM period starts), "
+                f"found {show(f'control.{name}.sample_time')}",
+            )
+    if not 0.0 < state["control.voltage_fraction"] <= 1.0:
+        return (
+            "control.voltage_fraction",
+            f"expected a fraction above 0 and at most 1, found {show('control.voltage_fraction')}",
+        )
+    if "control.reference" in present:
+        kind = state["control.reference.kind"]
+        required, allowed = _REFERENCE_KEYS[kind]
+        if kind in ("trapezoid", "s-curve") and mode != "position":
+            return (
+                "control.reference.kind",
+                f"expected a reference kind for control mode '{mode}' (step, ramp or table; "
+                f"'{kind}' is a position move), found '{kind}'",
+            )
+        for key in sorted(required):
+            if state[f"control.reference.{key}"] is None:
+                return (
+                    f"control.reference.{key}",
+                    f"missing key: a '{kind}' reference needs {', '.join(sorted(required))}; "
+                    f"found no {key}",
+                )
+        for key in sorted(KEYS["control.reference"]):
+            name = f"control.reference.{key}"
+            if key != "kind" and key not in required | allowed and name in given:
+                return (
+                    name,
+                    f"expected no {key} in a '{kind}' reference (it takes "
+                    f"{', '.join(sorted(required | allowed))}), found {show(name)}",
+                )
+        if kind == "ramp":
+            n = sum(state[f"control.reference.{k}"] is not None for k in ("rate", "ramp_time"))
+            if n != 1:
+                return (
+                    "control.reference.rate",
+                    "expected exactly one of rate and ramp_time for a 'ramp' reference, found "
+                    f"{'both' if n == 2 else 'neither'}",
+                )
+    if "sensors" in present:
+        problem = _sensors_problem(state, show)
+        if problem is not None:
+            return problem
+    return None
+
+
+def _loop_problem(t: str, state: dict[str, Any], given: set[str], show: _Show) -> _Problem:
+    form = state[f"{t}.form"]
+    parallel = ("kp", "ki", "kd")
+    other = ("gain", "integral_time", "derivative_time")
+    mine, theirs = (parallel, other) if form == "parallel" else (other, parallel)
+    for key in theirs:
+        if f"{t}.{key}" in given:
+            return (
+                f"{t}.{key}",
+                f"expected {', '.join(mine)} for the '{form}' form of [{t}] (set {t}.form to "
+                f"choose), found {key} = {show(f'{t}.{key}')}",
+            )
+    lead = mine[0]
+    if state[f"{t}.{lead}"] is None:
+        what = "the proportional gain" if lead == "kp" else "the controller gain"
+        return (f"{t}.{lead}", f"missing key: expected {lead} in [{t}] ({what}), found no {lead}")
+    if form == "parallel":
+        ki = state[f"{t}.ki"]
+    else:
+        ti = state[f"{t}.integral_time"]
+        ki = 0.0 if ti is None else 1.0
+    if state[f"{t}.anti_windup"] == "back-calculation" and ki == 0.0:
+        return (
+            f"{t}.anti_windup",
+            f"expected integral action (ki > 0) for back-calculation anti-windup in [{t}], "
+            "found none",
+        )
+    if state[f"{t}.initial_output"] is not None and ki == 0.0:
+        return (
+            f"{t}.initial_output",
+            f"expected integral action (ki > 0) to start from an initial output in [{t}] "
+            f"(bumpless start sets the integral), found ki = 0",
+        )
+    return None
+
+
+def _sensors_problem(state: dict[str, Any], show: _Show) -> _Problem:
+    for key, top in (
+        ("encoder_lines", 1e9),
+        ("current_adc_bits", 32),
+        ("bus_voltage_adc_bits", 32),
+        ("seed", 2**63),
+    ):
+        name = f"sensors.{key}"
+        value = state[name]
+        if value != round(value) or value > top:
+            return (name, f"expected a whole number from 0 to {top:g}, found {show(name)}")
+    for bits, full in (
+        ("current_adc_bits", "current_range"),
+        ("bus_voltage_adc_bits", "bus_voltage_range"),
+    ):
+        if state[f"sensors.{bits}"] > 0 and not state[f"sensors.{full}"] > 0:
+            return (
+                f"sensors.{full}",
+                f"expected the ADC's full scale when sensors.{bits} is "
+                f"{show(f'sensors.{bits}')}, found {show(f'sensors.{full}')}",
+            )
+    return None
+
+
 def _relative_to(source: str, name: str) -> Path:
     path = Path(name)
     if not path.is_absolute() and not source.startswith("<"):
@@ -1003,6 +1232,16 @@ def _resolve_files(tables: dict[str, Any], source: str) -> None:
             source=source,
         )
         tables["fuse"] = fuse
+    ref = tables.get("control.reference")
+    if ref is not None and ref.kind == "table" and not ref.times_s:
+        from dcsim.controllers.motion import read_reference_csv, table_profile
+
+        key = "control.reference.file"
+        times, vals = read_reference_csv(_relative_to(source, ref.file), source=source, key=key)
+        table_profile(times, vals, source=source, key=key)  # checks the points
+        tables["control.reference"] = dataclasses.replace(
+            ref, times_s=tuple(float(t) for t in times), values=tuple(float(v) for v in vals)
+        )
     prof = tables.get("supply_profile")
     if prof is not None and not prof.times_s:
         from dcsim.power import profiles

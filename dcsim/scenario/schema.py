@@ -86,6 +86,68 @@ def _q(unit, noun, example, default=REQUIRED, constraint="nonnegative", changeab
     )
 
 
+CONTROLLED = "<controlled>"
+"""Placeholder unit of reference values: A, rad/s or rad, as the control mode says."""
+
+CONTROLLED_UNITS = {"current": "A", "speed": "rad/s", "position": "rad"}
+"""SI unit of the controlled quantity of each closed-loop mode."""
+
+
+def _loop_keys(
+    in_unit: str,
+    out_unit: str,
+    limit_unit: str,
+    kp_example: str,
+    ki_example: str,
+    h_example: str,
+    limit_example: str,
+    *,
+    feedforward: tuple[str, ...],
+    limit_required: bool = False,
+) -> dict[str, KeySpec]:
+    """Keys of one control loop (measurement in ``in_unit``, output in ``out_unit``).
+
+    ``feedforward`` names the loop's feed-forward switches (bool keys, default off).
+    """
+    kp_unit = f"({out_unit})/({in_unit})"
+    kd_example = f"0 {out_unit}*s/({in_unit})"
+    switches = {
+        name: KeySpec(None, kind="bool", default=False, noun="true or false", example="true")
+        for name in feedforward
+    }
+    return switches | {
+        "kp": _q(kp_unit, "a proportional gain", kp_example, default=None),
+        "ki": _q(f"{kp_unit}/s", "an integral gain", ki_example, default=0.0),
+        "kd": _q(f"{kp_unit}*s", "a derivative gain", kd_example, default=0.0),
+        "form": _choice("parallel", "a controller form", ("parallel", "ideal", "series")),
+        "gain": _q(kp_unit, "a controller gain", kp_example, default=None),
+        "integral_time": _q("s", "a time", "10 ms", default=None, constraint="positive"),
+        "derivative_time": _q("s", "a time", "1 ms", default=None),
+        "sample_time": _q("s", "a time", h_example, constraint="positive"),
+        "limit": _q(
+            limit_unit,
+            "an output limit",
+            limit_example,
+            default=REQUIRED if limit_required else None,
+            constraint="positive",
+        ),
+        "derivative_filter": _q("s", "a time constant", "100 us", default=0.0),
+        "setpoint_weight": _q("", "a setpoint weight", "1", default=1.0),
+        "anti_windup": _choice(
+            "clamping", "an anti-windup method", ("clamping", "back-calculation", "none")
+        ),
+        "tracking_time": _q("s", "a time", "5 ms", default=None, constraint="positive"),
+        "discretisation": _choice(
+            "backward-euler",
+            "a discretisation method",
+            ("backward-euler", "forward-euler", "tustin"),
+        ),
+        "initial_output": _q(
+            out_unit, "an initial output", f"0 {out_unit}", default=None, constraint="any"
+        ),
+    }
+
+
 KEYS: dict[str, dict[str, KeySpec]] = {
     "simulation": {
         "duration": _q("s", "a time", "1 s", constraint="positive"),
@@ -204,9 +266,103 @@ KEYS: dict[str, dict[str, KeySpec]] = {
             default="voltage",
             noun="a control mode",
             example="voltage",
-            choices=("voltage",),
+            choices=("voltage", "current", "speed", "position"),
         ),
         "voltage": _q("V", "a voltage", "24 V", default=0.0, constraint="any", changeable=True),
+        "computation_delay": KeySpec(
+            None, kind="bool", default=False, noun="true or false", example="false"
+        ),
+        "voltage_fraction": _q("", "a fraction of the bus voltage", "0.95", default=1.0),
+    },
+    "control.current": _loop_keys(
+        "A",
+        "V",
+        "V",
+        "2.5 V/A",
+        "3000 V/(A*s)",
+        "50 us",
+        "24 V",
+        feedforward=("back_emf_feedforward",),
+    ),
+    "control.speed": _loop_keys(
+        "rad/s",
+        "A",
+        "A",
+        "0.05 A*s/rad",
+        "2 A/rad",
+        "200 us",
+        "10 A",
+        feedforward=("acceleration_feedforward", "friction_feedforward"),
+        limit_required=True,
+    ),
+    "control.position": _loop_keys(
+        "rad",
+        "rad/s",
+        "rad/s",
+        "50 1/s",
+        "0 1/s^2",
+        "1 ms",
+        "300 rad/s",
+        feedforward=("speed_feedforward",),
+    ),
+    "control.reference": {
+        "kind": _choice(
+            "step", "a reference kind", ("step", "ramp", "trapezoid", "s-curve", "table")
+        ),
+        "value": _q(
+            CONTROLLED,
+            "a value of the controlled quantity",
+            "200 rad/s",
+            default=None,
+            constraint="any",
+        ),
+        "initial": _q(
+            CONTROLLED,
+            "a value of the controlled quantity",
+            "0 rad/s",
+            default=0.0,
+            constraint="any",
+        ),
+        "at": _q("s", "a time", "10 ms", default=0.0),
+        "rate": _q(
+            CONTROLLED + "/s",
+            "a rate of change",
+            "2000 rad/s^2",
+            default=None,
+            constraint="positive",
+        ),
+        "ramp_time": _q("s", "a time", "100 ms", default=None),
+        "distance": _q("rad", "an angle", "20 rad", default=None, constraint="any"),
+        "speed": _q("rad/s", "a speed", "300 rad/s", default=None, constraint="positive"),
+        "acceleration": _q(
+            "rad/s^2", "an acceleration", "5000 rad/s^2", default=None, constraint="positive"
+        ),
+        "deceleration": _q(
+            "rad/s^2", "an acceleration", "5000 rad/s^2", default=None, constraint="positive"
+        ),
+        "jerk": _q("rad/s^3", "a jerk", "1e6 rad/s^3", default=None, constraint="positive"),
+        "file": _text("a CSV file of time and reference value", "'moves.csv'"),
+    },
+    "sensors": {
+        "encoder_lines": _q("", "a number of encoder lines per revolution", "500", default=0.0),
+        "speed_method": _choice(
+            "difference", "a speed measurement method", ("difference", "period", "exact")
+        ),
+        "speed_filter": _q("s", "a time constant", "1 ms", default=0.0),
+        "timer_frequency": _q("Hz", "a frequency", "10 MHz", default=0.0),
+        "current_gain_error": _q(
+            "", "a relative gain error", "0.02", default=0.0, constraint="any"
+        ),
+        "current_offset": _q("A", "a current", "0.05 A", default=0.0, constraint="any"),
+        "current_adc_bits": _q("", "a number of ADC bits", "12", default=0.0),
+        "current_range": _q("A", "a current", "20 A", default=0.0),
+        "current_noise": _q("A", "a current", "0.01 A", default=0.0),
+        "speed_noise": _q("rad/s", "a speed", "0.1 rad/s", default=0.0),
+        "position_noise": _q("rad", "an angle", "1 mrad", default=0.0),
+        "bus_voltage_noise": _q("V", "a voltage", "0.05 V", default=0.0),
+        "bus_voltage_adc_bits": _q("", "a number of ADC bits", "12", default=0.0),
+        "bus_voltage_range": _q("V", "a voltage", "60 V", default=0.0),
+        "seed": _q("", "a whole number", "1", default=0.0),
     },
     "about": {
         "title": KeySpec(None, kind="text", default="", noun="a text", example="'Winch'"),
@@ -216,14 +372,28 @@ KEYS: dict[str, dict[str, KeySpec]] = {
 """Every accepted ``table.key`` with its :class:`KeySpec`. Tables are the TOML tables."""
 
 REQUIRED_TABLES = ("simulation", "motor", "supply")
-OPTIONAL_TABLES = ("brake", "protection", "precharge", "battery", "fuse", "supply_profile")
+OPTIONAL_TABLES = (
+    "brake",
+    "protection",
+    "precharge",
+    "battery",
+    "fuse",
+    "supply_profile",
+    "control.current",
+    "control.speed",
+    "control.position",
+    "control.reference",
+    "sensors",
+)
 """Tables that describe a part the drive may not have: absent means no such part."""
 DERIVED_FIELDS = {
     "fuse": ("table_points",),
     "supply_profile": ("times_s", "voltages_V", "notes"),
+    "control": ("current", "speed", "position", "reference"),
+    "control.reference": ("times_s", "values"),
 }
 """Dataclass fields the loader fills from the keys (not keys themselves)."""
-POWER_STAGE_TABLES = OPTIONAL_TABLES
+POWER_STAGE_TABLES = OPTIONAL_TABLES[:6]
 """Parts that only the averaged and switching bridge models simulate."""
 
 
@@ -548,6 +718,201 @@ class SupplyProfile:
 
 
 @dataclass(frozen=True)
+class Loop:
+    """One discrete control loop (see :mod:`dcsim.controllers.pid` for the equations).
+
+    Units are those of the loop: the current loop measures A and outputs V, the speed loop
+    rad/s and A, the position loop rad and rad/s.
+
+    Attributes
+    ----------
+    sample_time : float
+        [s]; an integer multiple of the fastest loop's.
+    kp, ki, kd : float or None
+        Parallel-form gains: ``u = kp (b r - y) + ki * integral(e dt) + kd d(-y)/dt``.
+    form : str
+        ``"parallel"`` (``kp``, ``ki``, ``kd``), ``"ideal"`` or ``"series"`` (``gain``,
+        ``integral_time``, ``derivative_time``, converted by :meth:`parallel_gains`).
+    gain, integral_time, derivative_time : float or None
+        Gains of the ideal or series form [output/input, s, s].
+    limit : float or None
+        Output limit [output unit]; the current loop's is also bounded by the measured bus
+        voltage (times ``control.voltage_fraction``).
+    derivative_filter : float
+        Time constant of the derivative filter [s] (0: none).
+    setpoint_weight : float
+        Weight ``b`` of the reference in the proportional term [-].
+    anti_windup : str
+        ``"clamping"`` (conditional integration), ``"back-calculation"`` or ``"none"``.
+    tracking_time : float or None
+        Back-calculation tracking time [s]; default ``kp / ki``.
+    discretisation : str
+        ``"backward-euler"``, ``"forward-euler"`` or ``"tustin"`` (the integral; the
+        derivative uses the backward difference, or Tustin with Tustin).
+    initial_output : float or None
+        Output at the first sample (bumpless start: the integral is preset to give it)
+        [output unit]; ``None``: the integral starts at 0.
+    """
+
+    sample_time: float
+    kp: float | None = None
+    ki: float = 0.0
+    kd: float = 0.0
+    form: str = "parallel"
+    gain: float | None = None
+    integral_time: float | None = None
+    derivative_time: float | None = None
+    limit: float | None = None
+    derivative_filter: float = 0.0
+    setpoint_weight: float = 1.0
+    anti_windup: str = "clamping"
+    tracking_time: float | None = None
+    discretisation: str = "backward-euler"
+    initial_output: float | None = None
+
+    def parallel_gains(self) -> tuple[float, float, float]:
+        """``(kp, ki, kd)`` of the parallel form, whichever form the scenario used."""
+        if self.form == "parallel":
+            return float(self.kp or 0.0), self.ki, self.kd
+        from dcsim.controllers.pid import parallel_gains
+
+        return parallel_gains(
+            self.form, float(self.gain or 0.0), self.integral_time, self.derivative_time
+        )
+
+
+@dataclass(frozen=True)
+class CurrentLoop(Loop):
+    """The current loop (A in, V out).
+
+    Attributes
+    ----------
+    back_emf_feedforward : bool
+        Add ``K * measured speed`` to the output (back-EMF compensation).
+    """
+
+    back_emf_feedforward: bool = False
+
+
+@dataclass(frozen=True)
+class SpeedLoop(Loop):
+    """The speed loop (rad/s in, A out; ``limit`` is the current limit and required).
+
+    Attributes
+    ----------
+    acceleration_feedforward : bool
+        Add ``J * reference acceleration / K`` (J = rotor + load inertia).
+    friction_feedforward : bool
+        Add ``(B w_ref + T_c sgn w_ref) / K``.
+    """
+
+    acceleration_feedforward: bool = False
+    friction_feedforward: bool = False
+
+
+@dataclass(frozen=True)
+class PositionLoop(Loop):
+    """The position loop (rad in, rad/s out).
+
+    Attributes
+    ----------
+    speed_feedforward : bool
+        Add the reference speed of the motion profile to the output.
+    """
+
+    speed_feedforward: bool = False
+
+
+@dataclass(frozen=True)
+class Reference:
+    """What the outermost loop follows (units of the controlled quantity: A, rad/s or rad).
+
+    Attributes
+    ----------
+    kind : str
+        ``"step"`` (``value`` at ``at``), ``"ramp"`` (to ``value`` at ``rate`` or over
+        ``ramp_time``), ``"trapezoid"`` / ``"s-curve"`` (position moves of ``distance`` with
+        ``speed``, ``acceleration`` [, ``deceleration``] [, ``jerk``] limits) or ``"table"``
+        (``file``: CSV of time [s] and value [SI], linear between points).
+    value, initial : float or None
+        Final and starting value.
+    at : float
+        Start time [s].
+    rate : float or None
+        Ramp rate [unit/s].
+    ramp_time : float or None
+        Ramp duration [s].
+    distance, speed, acceleration, deceleration, jerk : float or None
+        Move of ``distance`` [rad] within the limits [rad/s, rad/s^2, rad/s^3].
+    file : str or None
+        CSV of the table reference.
+    times_s, values : tuple of float
+        The table as read (filled by the loader).
+    """
+
+    kind: str = "step"
+    value: float | None = None
+    initial: float = 0.0
+    at: float = 0.0
+    rate: float | None = None
+    ramp_time: float | None = None
+    distance: float | None = None
+    speed: float | None = None
+    acceleration: float | None = None
+    deceleration: float | None = None
+    jerk: float | None = None
+    file: str | None = None
+    times_s: tuple[float, ...] = ()
+    values: tuple[float, ...] = ()
+
+
+@dataclass(frozen=True)
+class Sensors:
+    """Measurements the controller works on (see :mod:`dcsim.controllers.cascade`).
+
+    Attributes
+    ----------
+    encoder_lines : float
+        Incremental encoder lines per revolution, read x4 (0: the angle is read exactly).
+    speed_method : str
+        ``"difference"`` (counts per sample), ``"period"`` (time between edges) or
+        ``"exact"``; without an encoder the speed is read exactly.
+    speed_filter : float
+        First-order low-pass time constant on the speed [s] (0: none).
+    timer_frequency : float
+        Clock that stamps encoder edges for the period method [Hz] (0: exact).
+    current_gain_error : float
+        Relative gain error of the current sensor [-].
+    current_offset : float
+        [A]
+    current_adc_bits, current_range : float
+        ADC resolution and +- full scale [A] (0: none).
+    current_noise, speed_noise, position_noise, bus_voltage_noise : float
+        Standard deviations of white noise [A, rad/s, rad, V].
+    bus_voltage_adc_bits, bus_voltage_range : float
+        Bus voltage ADC resolution and full scale 0..range [V].
+    seed : float
+        Seed of the noise generator (a whole number).
+    """
+
+    encoder_lines: float = 0.0
+    speed_method: str = "difference"
+    speed_filter: float = 0.0
+    timer_frequency: float = 0.0
+    current_gain_error: float = 0.0
+    current_offset: float = 0.0
+    current_adc_bits: float = 0.0
+    current_range: float = 0.0
+    current_noise: float = 0.0
+    speed_noise: float = 0.0
+    position_noise: float = 0.0
+    bus_voltage_noise: float = 0.0
+    bus_voltage_adc_bits: float = 0.0
+    bus_voltage_range: float = 0.0
+    seed: float = 0.0
+
+
+@dataclass(frozen=True)
 class Control:
     """Controller settings.
 
@@ -557,12 +922,29 @@ class Control:
         ``"voltage"``: open loop. The ideal bridge applies ``voltage`` clipped to the bus; the
         averaged and switching bridges run at the duty ``voltage / supply.voltage`` (the
         nominal supply voltage at the start), so their armature voltage follows the bus.
+        ``"current"``, ``"speed"``, ``"position"``: the cascade of discrete loops down to the
+        current loop, whose output voltage the bridge applies (the PWM bridges at the duty
+        ``command / measured bus voltage``).
     voltage : float
-        Commanded armature voltage [V].
+        Commanded armature voltage [V] (mode ``"voltage"``).
+    computation_delay : bool
+        Apply each sample's output one base sample later.
+    voltage_fraction : float
+        Part of the measured bus voltage the current loop may command [-].
+    current, speed, position : Loop or None
+        The loops ([control.current], ...); the mode needs its own loop and those inside it.
+    reference : Reference or None
+        What the outermost loop follows.
     """
 
     mode: str = "voltage"
     voltage: float = 0.0
+    computation_delay: bool = False
+    voltage_fraction: float = 1.0
+    current: CurrentLoop | None = None
+    speed: SpeedLoop | None = None
+    position: PositionLoop | None = None
+    reference: Reference | None = None
 
 
 @dataclass(frozen=True)
@@ -597,7 +979,7 @@ class Scenario:
     ----------
     simulation, motor, load, supply, control, about, bridge
         The tables of the file.
-    brake, protection, precharge, battery, fuse, supply_profile
+    brake, protection, precharge, battery, fuse, supply_profile, sensors
         Optional parts; ``None`` when the file has no such table.
     events : tuple of Event
         Sorted by time (stable for equal times, in file order).
@@ -618,6 +1000,7 @@ class Scenario:
     battery: Battery | None = None
     fuse: Fuse | None = None
     supply_profile: SupplyProfile | None = None
+    sensors: Sensors | None = None
     events: tuple[Event, ...] = ()
     source: str = "<scenario>"
 
@@ -640,7 +1023,18 @@ class Scenario:
         return apply_changes(self, changes)
 
     def get(self, dotted: str) -> Any:
-        """Value of a dotted key, e.g. ``sc.get("motor.resistance")`` [SI]."""
-        table, _, key = dotted.partition(".")
-        part = getattr(self, table)
+        """Value of a dotted key, e.g. ``sc.get("motor.resistance")`` or
+        ``sc.get("control.speed.kp")`` [SI]; ``None`` when its table is absent."""
+        table, _, key = dotted.rpartition(".")
+        part = table_of(self, table)
         return None if part is None else getattr(part, key)
+
+
+def table_of(scenario: Scenario, table: str) -> Any:
+    """The dataclass of a (possibly nested, dotted) table, or ``None`` when it is absent."""
+    part: Any = scenario
+    for name in table.split("."):
+        if part is None:
+            return None
+        part = getattr(part, name)
+    return part

@@ -1,0 +1,1 @@
+"""Discrete controllers, sensors and motion references (compiled parts run in the kernels)."""
