@@ -98,9 +98,8 @@ def plain_cascade(sc) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     Backward-Euler integrals with clamping, as dcsim's defaults (dcsim.controllers.pid).
     Returns the times of the control periods and the speed and angle there.
     """
-    from dcsim.controllers.motion import sample
-
     from dcsim.controllers.assemble import reference_profile
+    from dcsim.controllers.motion import sample
 
     prof = reference_profile(sc)
     h = 50e-6
