@@ -249,9 +249,8 @@ def test_averaged_duty_is_command_over_measured_bus():
         scenario(bridge=PWM["averaged"].replace("duty_counts = 2500", ""), supply=BUS)
     )
     tr = dcsim.simulate(sc).trace
-    # rows every 50 us fall on the samples; a row at a sample instant closes the period
-    # before it: its duty and the controller values in it are those of the previous sample
-    # (unquantised duty here): m = v / v_bus,meas
+    # rows every 50 us fall on the samples; a row at a sample instant shows the duty and
+    # the controller values just after the sample (unquantised duty here): m = v / v_bus,meas
     # (the duty of the averaged bridge without dead time is its modulation). Source: the
     # definition of the averaged full bridge, v_a = m v_bus (Mohan, Undeland & Robbins,
     # Power Electronics, 3rd ed., full-bridge dc-dc converter chapter -- from memory).

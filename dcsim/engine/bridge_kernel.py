@@ -193,7 +193,7 @@ from dcsim.engine.bridge_layout import (
     TRIP_RESTART,
     TRIP_UNDER_VOLTAGE,
 )
-from dcsim.engine.expm import expm
+from dcsim.engine.expm import expm, matmul_small
 from dcsim.plant.mechanics import fill_shaft_rows, friction_state, inertia_change
 
 # linear forms over the augmented state (rows of `forms`)
@@ -496,7 +496,7 @@ def _fill_slot(md, q, forms, fsc, tau, cache_key, cache_tau, cache_gen, cache_e,
     build_matrix(md, q, forms, fsc, scratch, bvec)
     half = expm(scratch * (0.5 * tau))
     cache_e[h, 0] = half
-    cache_e[h, 1] = half @ half
+    matmul_small(half, half, cache_e[h, 1])
     cache_key[h] = key
     cache_tau[h, 0] = tq
     cache_tau[h, 1] = mq
@@ -725,7 +725,8 @@ def _trial(x, md, q, forms, fsc, tau, scratch, bvec, ym, y1, work, f0, use_fuse,
     """Propagate ``x`` by ``tau`` without the cache; the combined guard at the end."""
     build_matrix(md, q, forms, fsc, scratch, bvec)
     half = expm(scratch * (0.5 * tau))
-    full = half @ half
+    full = np.empty((N_A, N_A))
+    matmul_small(half, half, full)
     for i in range(N_A):
         s = 0.0
         s2 = 0.0
@@ -1285,7 +1286,8 @@ def run_periods(x, md, q, period, n_grid, n_sub, duration, p_first, p_last, ev_t
     For the switching model a period is one PWM period; for the averaged model it is one
     trace row, or one controller base sample in closed loop. ``n_grid`` nominal steps make a
     period; a trace row every ``n_sub`` steps (and at the end). With ``n_cp > 0`` the
-    controller runs at the start of every ``n_cp``-th period, on the node voltage as the bus
+    controller runs at the start of every ``n_cp``-th period (taken at the end of the period
+    before, ahead of the trace row written there), on the node voltage as the bus
     measurement, and its voltage command becomes the duty ``command / measured bus voltage``
     from that period on. Returns ``(status, time reached)``.
     """
@@ -1343,25 +1345,6 @@ def run_periods(x, md, q, period, n_grid, n_sub, duration, p_first, p_last, ev_t
             if lo_ok and hi_ok:
                 md[M_TRIP] = 0
                 log_trip(trips, acc, t_p, TRIP_RESTART, vn)
-        if n_cp > 0 and p % n_cp == 0 and p > 0:
-            vn = _dot(forms[F_VN], x)
-            q[Q_VCMD] = control_sample(
-                p // n_cp, t_p, x[S_I], x[S_W], x[S_TH], vn, cp, cs, rng, segs
-            )
-            q[Q_VNOM] = cs[GREC + K_V_MEAS]
-            if not switching:
-                da, db, m = modulation(q)
-                if m != q[Q_MOD]:
-                    # the propagators are keyed by the modulation (no generation bump)
-                    q[Q_MOD] = m
-                    carry[0] = 0
-                    compute_forms(md, q, forms, fsc)
-                    st = update_modes(x, md, q, forms, fsc, t_p, acc, trips, ocv_soc, ocv_v)
-                    if st == -1:
-                        genbox[0] += 1
-                    elif st != STATUS_OK:
-                        status = st
-                        break
         enabled = bridge_enabled(md)
         if switching:
             if enabled:
@@ -1519,9 +1502,31 @@ def run_periods(x, md, q, period, n_grid, n_sub, duration, p_first, p_last, ev_t
                 k = 0
                 md[M_LIMITED] = 1
                 continue
+            at_end = t1 >= duration * (1.0 - 1e-15)
+            if n_cp > 0 and k == nseg - 1 and (p + 1) % n_cp == 0 and not at_end:
+                # the controller's sample at the end of this period (the start of the next),
+                # before the trace row there, so that the row shows the values after it
+                t_s = (p + 1) * period
+                vn = _dot(forms[F_VN], x)
+                q[Q_VCMD] = control_sample(
+                    (p + 1) // n_cp, t_s, x[S_I], x[S_W], x[S_TH], vn, cp, cs, rng, segs
+                )
+                q[Q_VNOM] = cs[GREC + K_V_MEAS]
+                if not switching:
+                    da, db, m = modulation(q)
+                    if m != q[Q_MOD]:
+                        # the propagators are keyed by the modulation (no generation bump)
+                        q[Q_MOD] = m
+                        carry[0] = 0
+                        compute_forms(md, q, forms, fsc)
+                        st = update_modes(x, md, q, forms, fsc, t_s, acc, trips, ocv_soc, ocv_v)
+                        if st == -1:
+                            genbox[0] += 1
+                        elif st != STATUS_OK:
+                            status = st
+                            break
             # trace row at grid points
             jg = bgrid[k + 1]
-            at_end = t1 >= duration * (1.0 - 1e-15)
             if (jg >= 0 and (p * n_grid + jg) % n_sub == 0) or at_end:
                 if row < rec.shape[1]:
                     write_row(x, md, q, forms, fsc, t1, rec, row, acc, 1.0 * md[M_LIMITED], rowwork)

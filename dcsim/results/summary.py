@@ -165,6 +165,10 @@ def format_summary(summary: Mapping[str, Any]) -> str:
 
     if get("bridge_model") is not None:
         _power_stage_rows(summary, row)
+    if get("control_mode") is not None:
+        lines.append("")
+        lines.append(f"  {'Closed loop':<{width}}mode {get('control_mode')}")
+        _control_rows(summary, row)
 
     terms = energy_terms(summary)
     if terms or _RESIDUAL_KEY in summary:
@@ -183,6 +187,40 @@ def format_summary(summary: Mapping[str, Any]) -> str:
     lines.append("")
     lines.append(CAUTION)
     return "\n".join(lines)
+
+
+_CONTROL_UNITS = {"A": "A", "rad_s": "rad/s", "rad": "rad"}
+
+
+def _control_rows(summary: Mapping[str, Any], row) -> None:
+    """Rows of a closed-loop run: the response metrics of the controlled quantity."""
+    get = summary.get
+    unit_key = next((u for u in ("rad_s", "rad", "A") if f"final_error_{u}" in summary), "A")
+    unit = _CONTROL_UNITS[unit_key]
+    row("fastest loop sample time", _time(get("control_sample_time_s")))
+    if "rise_time_s" in summary:
+        row("rise time (10-90 %)", _time(get("rise_time_s")))
+        row("overshoot", _num(get("overshoot_percent"), "%", digits=3))
+        row("settling time (2 %)", _time(get("settling_time_s")))
+        row("steady-state error", _num(get(f"steady_state_error_{unit_key}"), unit, digits=3))
+    if f"peak_following_error_{unit_key}" in summary:
+        row(
+            "following error during the move",
+            f"peak {_num(get(f'peak_following_error_{unit_key}'), unit, digits=3)}   "
+            f"rms {_num(get(f'rms_following_error_{unit_key}'), unit, digits=3)}",
+        )
+    row("error at the end", _num(get(f"final_error_{unit_key}"), unit, digits=3))
+    for step in get("load_steps") or []:
+        rec = step.get("recovery_time_s")
+        row(
+            f"load change at {_time(step['time_s'])}",
+            f"dip {_num(step[f'dip_{unit_key}'], unit, digits=3)}, back within "
+            f"{_num(step[f'band_{unit_key}'], unit, digits=3)} "
+            + ("never" if rec is None else f"after {_time(rec)}"),
+        )
+    if get("time_in_current_limit_s") is not None:
+        row("time at the current limit", _time(get("time_in_current_limit_s")))
+    row("time at the voltage limit", _time(get("time_in_voltage_limit_s")))
 
 
 def _power_stage_rows(summary: Mapping[str, Any], row) -> None:
