@@ -273,3 +273,48 @@ def test_holding_against_friction_at_rest_does_not_chatter():
     res = dcsim.simulate(load_scenario_text(text))
     assert res.summary["located_regime_changes"] < 200
     assert math.isfinite(res.summary["final_error_rad"])
+
+
+def test_reference_may_be_written_under_the_outermost_loop():
+    plain = load_scenario_text(scenario())
+    under = load_scenario_text(
+        scenario(reference=STEP.replace("[control.reference]", "[control.speed.reference]"))
+    )
+    assert under.control.reference == plain.control.reference
+    err = error(
+        scenario(reference=STEP.replace("[control.reference]", "[control.current.reference]"))
+    )
+    assert err.key == "control.current.reference"
+    assert "expected the reference under the outermost loop of control mode 'speed'" in str(err)
+    both = scenario(
+        reference=STEP + STEP.replace("[control.reference]", "[control.speed.reference]")
+    )
+    assert "expected one reference" in str(error(both))
+
+
+def test_table_reference_from_a_csv_file(tmp_path):
+    csv = tmp_path / "speeds.csv"
+    csv.write_text("time [s],speed [rad/s]\n0,0\n0.05,80\n0.1,80\n0.15,20\n", encoding="utf-8")
+    path = tmp_path / "belt.toml"
+    path.write_text(
+        scenario(reference='[control.reference]\nkind = "table"\nfile = "speeds.csv"\n'),
+        encoding="utf-8",
+    )
+    sc = dcsim.load_scenario(path)
+    assert sc.control.reference.times_s == (0.0, 0.05, 0.1, 0.15)
+    tr = dcsim.simulate(sc).trace
+    # the reference column is the table interpolated linearly (numpy.interp is the
+    # reference for piecewise-linear interpolation), held after the last point
+    t = tr["time_s"]
+    expected = np.interp(t, [0.0, 0.05, 0.1, 0.15], [0.0, 80.0, 80.0, 20.0])
+    assert np.allclose(tr["reference_speed_rad_s"], expected, rtol=0, atol=1e-9)
+    bad = tmp_path / "bad.csv"
+    bad.write_text("0,0\n0.1\n", encoding="utf-8")
+    path.write_text(
+        scenario(reference='[control.reference]\nkind = "table"\nfile = "bad.csv"\n'),
+        encoding="utf-8",
+    )
+    with pytest.raises(ScenarioError) as info:
+        dcsim.load_scenario(path)
+    assert info.value.key == "control.reference.file"
+    assert "line 2" in str(info.value)

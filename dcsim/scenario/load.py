@@ -371,7 +371,17 @@ def _read_table(read: _Read, table: str, body: Any, source: str, mode: Any) -> N
     for key, value in body.items():
         name = f"{table}.{key}"
         spec = KEYS[table].get(key)
+        if spec is None and key == "reference" and table in _LOOP_TABLES:
+            _read_loop_reference(read, table, value, source, mode)
+            continue
         if spec is None and name in KEYS:
+            if name == "control.reference" and name in read.tables:
+                raise ScenarioError(
+                    "expected one reference, found both [control.reference] and a "
+                    "reference under a loop ([control.<loop>.reference])",
+                    source=source,
+                    key=name,
+                )
             _read_table(read, name, value, source, mode)
             continue
         if spec is None:
@@ -497,6 +507,35 @@ def _flatten(body: Mapping[Any, Any], *, where: str, source: str) -> Iterator[tu
                 )
             seen.add(name)
             yield name, item
+
+
+_LOOP_TABLES = ("control.current", "control.speed", "control.position")
+_OUTERMOST = {"current": "current", "speed": "speed", "position": "position"}
+
+
+def _read_loop_reference(read: _Read, table: str, body: Any, source: str, mode: Any) -> None:
+    """``[control.<loop>.reference]``: the reference written under the loop that follows it.
+
+    Only the outermost loop of the mode follows a reference (the inner loops follow the loop
+    around them), so this is another place to write ``[control.reference]``.
+    """
+    loop = table.rpartition(".")[2]
+    name = f"{table}.reference"
+    if _OUTERMOST.get(str(mode)) != loop:
+        raise ScenarioError(
+            f"expected the reference under the outermost loop of control mode "
+            f"{describe_value(mode)} ([control.reference] or [control.{mode}.reference]; the "
+            f"{loop} loop follows the loop around it), found [{name}]",
+            source=source,
+            key=name,
+        )
+    if "control.reference" in read.tables:
+        raise ScenarioError(
+            f"expected one reference, found both [control.reference] and [{name}]",
+            source=source,
+            key=name,
+        )
+    _read_table(read, "control.reference", body, source, mode)
 
 
 def _descend(name: str, value: Any) -> Iterator[tuple[str, Any]]:
