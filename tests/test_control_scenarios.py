@@ -318,3 +318,18 @@ def test_table_reference_from_a_csv_file(tmp_path):
         dcsim.load_scenario(path)
     assert info.value.key == "control.reference.file"
     assert "line 2" in str(info.value)
+
+
+def test_position_hold_reports_the_load_step_dip_and_return():
+    ref = '[control.reference]\nkind = "step"\nvalue = "2 rad"\nat = "5 ms"\n'
+    text = scenario(mode="position", reference=ref, duration="0.6 s") + LOAD_STEP.replace(
+        '"0.15 s"', '"0.3 s"'
+    )
+    s = dcsim.simulate(load_scenario_text(text)).summary
+    (step,) = s["load_steps"]
+    # a load torque opposing positive rotation pushes the held shaft back: the angle and the
+    # speed dip below their references, then the integral actions bring the angle back
+    # (final-value theorem, as above)
+    assert step["dip_rad"] < 0.0 and step["speed_dip_rad_s"] < 0.0
+    assert step["recovery_time_s"] is not None and step["recovery_time_s"] < 0.3
+    assert abs(s["final_error_rad"]) < step["band_rad"]

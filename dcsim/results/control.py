@@ -10,7 +10,8 @@ The metrics (:mod:`dcsim.results.metrics`) are taken on the *true* controlled qu
   moves, and the error at the end of the run;
 - each event that changes the load torque, load inertia or the supply voltage after the
   start: the dip of the controlled quantity and the time it takes to return within 2 % of the
-  reference (2 % of the reference magnitude: common practice, no source);
+  reference (2 % of the reference magnitude: common practice, no source); in position mode
+  also the speed's largest excursion from the profile's speed;
 - time with the speed loop's output at its current limit, and with the current loop's output
   at its voltage limit.
 """
@@ -100,15 +101,20 @@ def control_summary(sc: Scenario, columns: dict[str, np.ndarray], sample_s: floa
         rec = disturbance_recovery(
             t[sel], y[sel], t_event_s=t_ev, y_reference=r_ev, band=band, window_end_s=end
         )
-        steps.append(
-            {
-                "time_s": float(t_ev),
-                f"dip_{unit}": float(rec["dip"]),
-                "dip_time_s": float(rec["dip_time_s"]),
-                "recovery_time_s": _finite(rec["recovery_time_s"]),
-                f"band_{unit}": band,
-            }
-        )
+        entry = {
+            "time_s": float(t_ev),
+            f"dip_{unit}": float(rec["dip"]),
+            "dip_time_s": float(rec["dip_time_s"]),
+            "recovery_time_s": _finite(rec["recovery_time_s"]),
+            f"band_{unit}": band,
+        }
+        if mode == "position":
+            # the speed's excursion from the profile's speed, beside the position's
+            dw = columns["speed_rad_s"][sel] - columns["reference_speed_rad_s"][sel]
+            j = int(np.argmax(np.abs(dw)))
+            entry["speed_dip_rad_s"] = float(dw[j])
+            entry["speed_dip_time_s"] = float(t[sel][j] - t_ev)
+        steps.append(entry)
     if steps:
         out["load_steps"] = steps
     if "speed_loop_limited" in columns and mode in ("speed", "position"):
