@@ -23,6 +23,7 @@ project's 1e-6 of the final value for state checks.
 
 from __future__ import annotations
 
+import functools
 import math
 
 import control
@@ -528,8 +529,8 @@ def test_position_holds_target_against_load_step():
 # --------------------------------------------------------------------------------------------
 
 
-@pytest.fixture(scope="module")
-def windup_runs():
+@functools.cache
+def _windup_runs():
     """A 50 rad/s speed step against a 4 A current limit, three anti-windup choices."""
     out = {}
     for aw in ("none", "clamping", "back-calculation"):
@@ -549,7 +550,8 @@ def windup_runs():
 LIMIT_A = 4.0
 
 
-def test_anti_windup_keeps_the_speed_integrator_bounded(windup_runs):
+def test_anti_windup_keeps_the_speed_integrator_bounded():
+    windup_runs = _windup_runs()
     for aw, res in windup_runs.items():
         tr = res.trace
         # Preconditions (no source needed): the current command stays inside the limit, the
@@ -578,7 +580,8 @@ def test_anti_windup_keeps_the_speed_integrator_bounded(windup_runs):
     assert np.max(np.abs(windup_runs["none"].trace["speed_integrator_A"])) > 2.0 * LIMIT_A
 
 
-def test_anti_windup_reduces_overshoot(windup_runs):
+def test_anti_windup_reduces_overshoot():
+    windup_runs = _windup_runs()
     # Source: Astrom & Hagglund (1995), sec. 3.5: windup of the integral during saturation
     # causes the large overshoot that anti-windup removes.
     over = {aw: res.summary["overshoot_percent"] for aw, res in windup_runs.items()}

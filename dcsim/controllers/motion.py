@@ -24,7 +24,6 @@ References
 
 from __future__ import annotations
 
-import csv
 import math
 import os
 from collections.abc import Sequence
@@ -35,6 +34,7 @@ import numpy as np
 from numba import njit
 
 from dcsim.errors import ScenarioError
+from dcsim.scenario.csvpairs import read_pairs
 
 KINDS = ("step", "ramp", "trapezoid", "s-curve", "table")
 """Every accepted :attr:`Profile.kind`."""
@@ -701,72 +701,19 @@ def read_reference_csv(
         times not strictly rising; the message names the file and the line.
     """
     file = Path(path)
-    try:
-        text = file.read_text(encoding="utf-8-sig")
-    except (OSError, UnicodeDecodeError) as err:
-        reason = getattr(err, "strerror", None) or str(err)
+    rows = read_pairs(file, columns="time [s], value", source=source, key=key)
+    for (t_prev, _, line_prev), (t, _, lineno) in zip(rows[:-1], rows[1:], strict=True):
+        if t <= t_prev:
+            raise ScenarioError(
+                f"expected strictly rising times, found {t:g} s on line {lineno} of "
+                f"{file} after {t_prev:g} s on line {line_prev}",
+                source=source,
+                key=key,
+            )
+    if len(rows) < 2:
         raise ScenarioError(
-            f"expected a readable CSV file of time [s] and value, found that {file} cannot be "
-            f"read ({reason})",
-            source=source,
-            key=key,
-        ) from None
-    times: list[float] = []
-    values: list[float] = []
-    line_of: list[int] = []
-    lines = text.splitlines()
-    delimiter = ";" if any(";" in ln for ln in lines) else ","
-    for lineno, row in enumerate(csv.reader(lines, delimiter=delimiter), start=1):
-        cells = [c.strip() for c in row]
-        if not cells or all(not c for c in cells) or cells[0].startswith("#"):
-            continue
-        try:
-            numbers = [float(c) for c in cells if c]
-        except ValueError:
-            if not times and all(_is_text(c) for c in cells if c):
-                continue  # the header line
-            raise ScenarioError(
-                f"expected two numbers (time [s], value) on line {lineno} of {file}, found "
-                f"{delimiter.join(cells)!r}",
-                source=source,
-                key=key,
-            ) from None
-        if len(numbers) != 2:
-            raise ScenarioError(
-                f"expected two numbers (time [s], value) on line {lineno} of {file}, found "
-                f"{len(numbers)}",
-                source=source,
-                key=key,
-            )
-        if not all(math.isfinite(x) for x in numbers):
-            raise ScenarioError(
-                f"expected finite numbers on line {lineno} of {file}, found "
-                f"{delimiter.join(cells)!r}",
-                source=source,
-                key=key,
-            )
-        if times and numbers[0] <= times[-1]:
-            raise ScenarioError(
-                f"expected strictly rising times, found {numbers[0]:g} s on line {lineno} of "
-                f"{file} after {times[-1]:g} s on line {line_of[-1]}",
-                source=source,
-                key=key,
-            )
-        times.append(numbers[0])
-        values.append(numbers[1])
-        line_of.append(lineno)
-    if len(times) < 2:
-        raise ScenarioError(
-            f"expected at least two (time, value) lines in {file}, found {len(times)}",
+            f"expected at least two (time, value) lines in {file}, found {len(rows)}",
             source=source,
             key=key,
         )
-    return np.array(times), np.array(values)
-
-
-def _is_text(cell: str) -> bool:
-    try:
-        float(cell)
-    except ValueError:
-        return True
-    return False
+    return np.array([r[0] for r in rows]), np.array([r[1] for r in rows])

@@ -18,7 +18,6 @@ memory" marks values not checked against the standard's text.
 
 from __future__ import annotations
 
-import csv
 import difflib
 import math
 import os
@@ -29,6 +28,7 @@ from pathlib import Path
 import numpy as np
 
 from dcsim.errors import ScenarioError
+from dcsim.scenario.csvpairs import read_pairs
 
 
 @dataclass(frozen=True)
@@ -287,54 +287,12 @@ def read_profile_csv(path: str | os.PathLike[str], *, source: str, key: str) -> 
         :func:`profile_from_points`; the message names the file and the line.
     """
     file = Path(path)
-    try:
-        text = file.read_text(encoding="utf-8-sig")
-    except (OSError, UnicodeDecodeError) as err:
-        reason = getattr(err, "strerror", None) or str(err)
-        raise ScenarioError(
-            f"expected a readable CSV file of time [s] and voltage [V], found that {file} "
-            f"cannot be read ({reason})",
-            source=source,
-            key=key,
-        ) from None
-    points: list[tuple[float, float]] = []
-    lines = text.splitlines()
-    delimiter = ";" if any(";" in ln for ln in lines) else ","
-    for lineno, row in enumerate(csv.reader(lines, delimiter=delimiter), start=1):
-        cells = [c.strip() for c in row]
-        if not cells or all(not c for c in cells) or cells[0].startswith("#"):
-            continue
-        try:
-            values = [float(c) for c in cells if c]
-        except ValueError:
-            if not points and all(_is_text(c) for c in cells if c):
-                continue  # the header line
-            raise ScenarioError(
-                f"expected two numbers (time [s], voltage [V]) on line {lineno} of {file}, "
-                f"found {','.join(cells)!r}",
-                source=source,
-                key=key,
-            ) from None
-        if len(values) != 2:
-            raise ScenarioError(
-                f"expected two numbers (time [s], voltage [V]) on line {lineno} of {file}, "
-                f"found {len(values)}",
-                source=source,
-                key=key,
-            )
-        points.append((values[0], values[1]))
+    rows = read_pairs(file, columns="time [s], voltage [V]", source=source, key=key)
+    points = [(a, b) for a, b, _ in rows]
     try:
         return profile_from_points(points, source=source, key=key, name=file.name)
     except ScenarioError as err:
         raise ScenarioError(f"{err.detail} (in {file})", source=source, key=key) from None
-
-
-def _is_text(cell: str) -> bool:
-    try:
-        float(cell)
-    except ValueError:
-        return True
-    return False
 
 
 def voltage_at(
