@@ -12,7 +12,7 @@ import pytest
 
 import dcsim
 from dcsim.controllers import layout as C
-from dcsim.controllers.cascade import _speed_estimate, normal
+from dcsim.controllers.cascade import normal, speed_estimate
 
 TWO_PI = 2.0 * math.pi
 
@@ -33,7 +33,7 @@ def _run_period_method(w0, counts, timer_hz, h, n, theta0=0.123):
         t = k * h
         th = theta0 + w0 * t
         cs[C.G_COUNT] = math.floor(th * counts / TWO_PI)
-        w = _speed_estimate(t, th, w0, cp, cs, rng, h, k == 0)
+        w = speed_estimate(t, th, w0, cp, cs, h, k == 0)
         cs[C.G_W_RAW] = w
         est.append(w)
     return np.array(est)

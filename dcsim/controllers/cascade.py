@@ -176,8 +176,10 @@ def _adc_unipolar(x, bits, full_scale):
 
 
 @njit(cache=True, error_model="numpy")
-def _speed_estimate(t, th, w, cp, cs, rng, h_speed, first):
-    """Speed measurement at a speed-loop sample [rad/s] (before the low-pass)."""
+def speed_estimate(t, th, w, cp, cs, h_speed, first):
+    """Speed measurement at a speed-loop sample [rad/s] (before the low-pass), from the
+    true speed ``w`` or the encoder count in ``cs`` (angle ``th`` [rad] at time ``t`` [s];
+    ``h_speed`` the speed loop's sample time [s])."""
     method = int(cp[C_SPEED_METHOD])
     n = cp[C_ENC]
     if n <= 0.0 or (method != SPEED_DIFFERENCE and method != SPEED_PERIOD):
@@ -257,7 +259,7 @@ def control_sample(k, t, i, w, th, vbus, cp, cs, rng, segs):
     speed_due = cp[ps + L_ACTIVE] > 0.5 and k % int(cp[ps + L_RATIO]) == 0
     if speed_due or cp[ps + L_ACTIVE] < 0.5:
         h_s = cp[ps + L_H] if cp[ps + L_ACTIVE] > 0.5 else cp[C_H]
-        raw = _speed_estimate(t, th_n, w, cp, cs, rng, h_s, first)
+        raw = speed_estimate(t, th_n, w, cp, cs, h_s, first)
         if cp[C_W_NOISE] > 0.0:
             raw += cp[C_W_NOISE] * normal(rng)
         tf = cp[C_SPEED_TF]
