@@ -1,4 +1,4 @@
-"""The ``dcsim`` command: ``run``, ``validate`` and ``demo``.
+"""The ``dcsim`` command: ``run``, ``validate``, ``tune`` and ``demo``.
 
 Exit codes: 0 success; 2 bad input (scenario file, command line), with one line on stderr
 naming the file, the key, what was expected and what was found; 1 any other failure, with one
@@ -220,6 +220,127 @@ def _cmd_validate(args: argparse.Namespace) -> int:
     return EXIT_OK
 
 
+def _rate(text: str, option: str) -> float:
+    """A frequency option: rad/s, or a unit string such as "200 Hz" or "1200 rad/s"."""
+    from dcsim.units import UnitError, to_si
+
+    try:
+        value = float(text)
+    except ValueError:
+        try:
+            unit = "Hz" if text.strip().endswith("Hz") else "rad/s"
+            value = to_si(text, unit, noun="a frequency", example="200 Hz")
+            if unit == "Hz":
+                value *= 2 * 3.141592653589793
+        except UnitError as err:
+            raise _BadInput(f"{option}: {err.detail}") from None
+    if not value > 0:
+        raise _BadInput(f"{option}: expected a frequency above 0, found {text!r}")
+    return value
+
+
+def _cmd_tune(args: argparse.Namespace) -> int:
+    scenario = _load(args.scenario)
+    import json
+
+    from dcsim.tuning.report import closed_loop_step, format_result, save_tuning_plots
+    from dcsim.tuning.tuner import _loop_tf, _prefilter, check_in_simulation, tune, with_gains
+
+    tolerances = None
+    if args.tolerance is not None:
+        if not 0 < args.tolerance < 1:
+            raise _BadInput(
+                f"--tolerance: expected a fraction between 0 and 1, found {args.tolerance}"
+            )
+        tolerances = {
+            k: args.tolerance
+            for k in (
+                "motor.resistance",
+                "motor.inductance",
+                "motor.torque_constant",
+                "motor.inertia",
+            )
+        }
+    if args.write and Path(args.write).exists() and not args.force:
+        raise _BadInput(
+            f"{args.write}: expected a new file (or --force to replace it), found an existing file"
+        )
+    result = tune(
+        scenario,
+        args.loop,
+        args.method,
+        bandwidth_rad_s=_rate(args.bandwidth, "--bandwidth") if args.bandwidth else None,
+        a=args.a,
+        pm_min_deg=args.pm,
+        gm_min_dB=args.gm,
+        ms_max=args.ms,
+        model=args.model,
+        tolerances=tolerances,
+    )
+    data = result.as_dict()
+    text = format_result(result)
+    if args.check:
+        check = check_in_simulation(scenario, result)
+        data["simulation_check"] = check
+        p, q = check["predicted"], check["simulated"]
+
+        def g(x):
+            return "n/a" if x is None else f"{x:.3g}"
+
+        text += (
+            f"\n\nSimulation check (a step of {check['step']:.4g}; predicted without a "
+            f"prefilter / simulated): overshoot {g(p['overshoot_percent'])} / "
+            f"{g(q['overshoot_percent'])} %, rise {g(p['rise_time_s'])} / {g(q['rise_time_s'])} "
+            f"s, settling {g(p['settling_time_s'])} / {g(q['settling_time_s'])} s; "
+            f"{check['note']}"
+        )
+    if args.q_format:
+        if not 1 <= args.q_format <= 31:
+            raise _BadInput(f"--q-format: expected 1 to 31 bits, found {args.q_format}")
+        if not (args.input_base > 0 and args.output_base > 0):
+            raise _BadInput("--input-base / --output-base: expected values above 0")
+        fixed = result.fixed_point(
+            q_bits=args.q_format, input_base=args.input_base, output_base=args.output_base
+        )
+        data["fixed_point"] = fixed
+        text += f"\n\nQ{args.q_format} coefficients (input base {args.input_base:g}, output base "
+        text += f"{args.output_base:g}; value = mantissa * 2^(shift - {args.q_format})):"
+        for name in ("q0", "q1", "kp", "ki_h"):
+            e = fixed[name]
+            text += (
+                f"\n  {name:<5} mantissa {e['mantissa']:>7d}  shift {e['shift']:>2d}  "
+                f"({e['per_unit']:.6g} p.u.)"
+            )
+    written = []
+    if args.plots:
+        from dcsim.tuning.plants import loop_plant
+
+        plant = loop_plant(scenario, args.loop)
+        lt = _loop_tf(
+            plant, result.kp, result.ki, result.kd, result.model, result.discretisation, 0.0
+        )
+        pre = _prefilter(result.prefilter_time_s, result.sample_time_s, result.model)
+        written += save_tuning_plots(result, lt, closed_loop_step(lt, pre), args.plots)
+    if args.write:
+        from dcsim.scenario.write import write_scenario
+
+        write_scenario(
+            with_gains(scenario, result),
+            args.write,
+            header=f"{args.scenario} with the {args.loop} loop tuned by {args.method} (dcsim tune)",
+            force=args.force,
+        )
+        written.append(Path(args.write))
+    if args.json:
+        _write(sys.stdout, json.dumps(data, indent=2, default=float) + "\n")
+    else:
+        lines = [text]
+        if written:
+            lines += ["", "files written:"] + [f"  {_shown(f)}" for f in written]
+        _write(sys.stdout, "\n".join(lines) + "\n")
+    return EXIT_OK
+
+
 # --------------------------------------------------------------------------------------------
 # Parser and entry point
 # --------------------------------------------------------------------------------------------
@@ -288,6 +409,61 @@ def build_parser() -> argparse.ArgumentParser:
     validate.add_argument("scenario", metavar="SCENARIO", help="scenario file (TOML)")
     validate.set_defaults(handler=_cmd_validate)
 
+    tune_ = commands.add_parser(
+        "tune",
+        parents=[common],
+        help="tune a loop of a scenario by a published method",
+        description="Gains of the current, speed or position loop by a named method, with "
+        "margins, bandwidth and step figures from the sampled plant.",
+    )
+    tune_.add_argument("scenario", metavar="SCENARIO", help="scenario file (TOML)")
+    tune_.add_argument("--loop", required=True, choices=("current", "speed", "position"))
+    tune_.add_argument(
+        "--method",
+        required=True,
+        choices=(
+            "imc",
+            "modulus-optimum",
+            "symmetric-optimum",
+            "simc",
+            "ziegler-nichols",
+            "optimise",
+        ),
+    )
+    tune_.add_argument(
+        "--bandwidth", metavar="RATE", help="target bandwidth (imc): rad/s or '200 Hz'"
+    )
+    tune_.add_argument(
+        "--a", type=float, default=2.0, help="symmetric-optimum parameter (default 2)"
+    )
+    tune_.add_argument(
+        "--pm", type=float, default=60.0, help="optimise: phase margin at least [deg]"
+    )
+    tune_.add_argument("--gm", type=float, default=6.0, help="optimise: gain margin at least [dB]")
+    tune_.add_argument("--ms", type=float, default=1.6, help="optimise: sensitivity peak at most")
+    tune_.add_argument("--model", choices=("discrete", "continuous"), default="discrete")
+    tune_.add_argument(
+        "--tolerance", type=float, help="worst case over +- this fraction of R, L, K, J"
+    )
+    tune_.add_argument("--json", action="store_true", help="print one JSON object")
+    tune_.add_argument("--check", action="store_true", help="check the gains in the simulation")
+    tune_.add_argument("--plots", metavar="DIR", help="write bode.png, nyquist.png, step.png here")
+    tune_.add_argument("--write", metavar="NEW.toml", help="write the scenario with the gains")
+    tune_.add_argument("--force", action="store_true", help="let --write replace a file")
+    tune_.add_argument(
+        "--q-format", type=int, metavar="BITS", help="fixed-point coefficients (e.g. 15)"
+    )
+    tune_.add_argument(
+        "--input-base",
+        type=float,
+        default=1.0,
+        help="fixed point: base of the measured quantity [SI]",
+    )
+    tune_.add_argument(
+        "--output-base", type=float, default=1.0, help="fixed point: base of the loop's output [SI]"
+    )
+    tune_.set_defaults(handler=_cmd_tune)
+
     demo = commands.add_parser(
         "demo",
         parents=[common],
@@ -324,7 +500,9 @@ def main(argv: Sequence[str] | None = None) -> int:
 
     handler: Callable[[argparse.Namespace], int] | None = getattr(args, "handler", None)
     if handler is None:
-        _error_line("no command given; choose one of run, validate, demo (see 'dcsim --help')")
+        _error_line(
+            "no command given; choose one of run, validate, tune, demo (see 'dcsim --help')"
+        )
         return EXIT_BAD_INPUT
 
     if args.debug:

@@ -1259,14 +1259,7 @@ def _resolve_files(tables: dict[str, Any], source: str) -> None:
             fuse.rated_current,
             melting_i2t_A2s=fuse.melting_i2t,
             min_melting_current_A=fuse.min_melting_current,
-            table=(
-                (
-                    [p[0] for p in fuse.table_points],
-                    [p[1] for p in fuse.table_points],
-                )
-                if fuse.table is not None
-                else None
-            ),
+            table=list(fuse.table_points) if fuse.table is not None else None,
             fuse_class=fuse.generic_class,
             source=source,
         )

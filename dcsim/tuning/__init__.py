@@ -1,0 +1,1 @@
+"""Loop tuning on the python-control library: plants, published rules, analysis."""
