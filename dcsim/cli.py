@@ -428,7 +428,9 @@ def build_parser() -> argparse.ArgumentParser:
             "simc",
             "ziegler-nichols",
             "optimise",
+            "scenario",
         ),
+        help="tuning method; 'scenario' analyses the scenario's own gains",
     )
     tune_.add_argument(
         "--bandwidth", metavar="RATE", help="target bandwidth (imc): rad/s or '200 Hz'"

@@ -3,6 +3,7 @@ coefficients, the simulation check, and the ``dcsim tune`` command."""
 
 from __future__ import annotations
 
+import functools
 import json
 import math
 
@@ -18,12 +19,17 @@ from dcsim.tuning.tuner import _loop_tf, check_in_simulation, tune, with_gains
 CONVEYOR = "scenarios/conveyor_speed_loop.toml"
 
 
-@pytest.fixture(scope="module")
-def linear_conveyor():
+@functools.cache
+def _linear_conveyor():
     # the linear models leave out Coulomb friction and the load torque: take them away for
     # the checks against the linear predictions
     sc = dcsim.load_scenario(CONVEYOR)
     return sc.with_changes({"motor.coulomb_friction": 0, "load.torque": 0})
+
+
+@pytest.fixture
+def linear_conveyor():
+    return _linear_conveyor()
 
 
 @pytest.mark.parametrize("a", [2.0, 3.0, 4.0])
@@ -166,3 +172,15 @@ def test_cli_tune_bad_input_is_one_line(capsys):
     assert err.count("\n") == 1 and "--bandwidth" in err
     assert main(["tune", CONVEYOR, "--loop", "current", "--method", "ziegler-nichols"]) == 2
     assert "Ziegler-Nichols does not apply" in capsys.readouterr().err
+
+
+def test_scenario_method_analyses_the_gains_as_written(linear_conveyor):
+    r = tune(linear_conveyor, "speed", "scenario")
+    kp, ki, kd = linear_conveyor.control.speed.parallel_gains()
+    assert (r.kp, r.ki, r.kd) == (kp, ki, kd)
+    # Source: python-control stability_margins on the same loop (as above)
+    lt = _loop_tf(
+        loop_plant(linear_conveyor, "speed"), kp, ki, kd, "discrete", r.discretisation, 0.0
+    )
+    _, pms, _, _, wgcs, _ = control.stability_margins(lt, returnall=True)
+    assert r.figures.phase_margin_deg == pytest.approx(pms[int(np.argmax(wgcs))], rel=1e-9)

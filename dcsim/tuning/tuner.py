@@ -11,6 +11,7 @@ for the formulas and sources):
 ``symmetric-optimum``  integrating plant plus the small lags, parameter ``a``
 ``simc``               first-order (or integrating) plant with the small lags as delay
 ``ziegler-nichols``    the ultimate gain and period of the sampled loop under P control
+``scenario``           no tuning: the figures of the gains the scenario already has
 ``optimise``           the largest crossover frequency with PM >= pm_min, GM >= gm_min,
                        Ms <= ms_max and the PI zero within a decade below crossover
                        (Nelder-Mead from a grid of starts on a penalty, scipy.optimize)
@@ -33,7 +34,16 @@ from dcsim.tuning import rules
 from dcsim.tuning.analysis import LoopFigures, analyse
 from dcsim.tuning.plants import LOOPS, LoopPlant, controller_tf, loop_plant
 
-METHODS = ("imc", "modulus-optimum", "symmetric-optimum", "simc", "ziegler-nichols", "optimise")
+METHODS = (
+    "imc",
+    "modulus-optimum",
+    "symmetric-optimum",
+    "simc",
+    "ziegler-nichols",
+    "optimise",
+    "scenario",
+)
+"""Tuning methods; ``"scenario"`` analyses the gains the scenario already has."""
 MODELS = ("discrete", "continuous")
 UNITS = {
     "current": ("A", "V"),
@@ -251,7 +261,16 @@ def tune(
     cautions: list[str] = []
     notes = list(plant.assumptions)
     prefilter = None
-    if method == "imc":
+    if method == "scenario":
+        if tbl is None:
+            raise ScenarioError(
+                f"expected a [control.{loop}] table with gains to analyse, found none",
+                source=sc.source,
+                key=f"control.{loop}",
+            )
+        kp0, ki0, kd0 = tbl.parallel_gains()
+        g = rules.Gains(kp=kp0, ki=ki0, kd=kd0, method="scenario", notes="the scenario's gains")
+    elif method == "imc":
         alpha = bandwidth_rad_s or _default_bandwidth(sc, loop, plant)
         if loop == "position":
             kp, ki = alpha, (alpha**2 / 4.0 if with_integral else 0.0)
