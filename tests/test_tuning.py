@@ -184,3 +184,17 @@ def test_scenario_method_analyses_the_gains_as_written(linear_conveyor):
     )
     _, pms, _, _, wgcs, _ = control.stability_margins(lt, returnall=True)
     assert r.figures.phase_margin_deg == pytest.approx(pms[int(np.argmax(wgcs))], rel=1e-9)
+
+
+@pytest.mark.parametrize("model", ["discrete", "continuous"])
+def test_every_method_gives_a_stable_current_and_speed_loop(linear_conveyor, model):
+    # Source: closed-loop stability by its definition, every pole of the feedback system
+    # (python-control poles) inside the unit circle or the left half-plane: every rule must
+    # return gains that stabilise the loop it was applied to (Ziegler-Nichols, which has no
+    # finite ultimate gain on this current loop, and modulus optimum on an integrating plant
+    # are refused)
+    for loop in ("current", "speed"):
+        for method in ("imc", "symmetric-optimum", "simc", "optimise"):
+            r = tune(linear_conveyor, loop, method, model=model)
+            assert r.figures.stable, (loop, method, model)
+            assert r.figures.phase_margin_deg > 20.0, (loop, method, model)

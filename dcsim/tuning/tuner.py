@@ -301,10 +301,16 @@ def tune(
             )
         g = rules.modulus_optimum(plant.gain, plant.time_constant_s, plant.small_time_constant_s)
     elif method == "symmetric-optimum":
-        g = rules.symmetric_optimum(plant.gain, plant.small_time_constant_s, a=a)
-        prefilter = g.prefilter_time_s
+        k_int = plant.gain
         if not plant.integrating:
-            notes.append("friction neglected: the plant taken as integrating")
+            # above its corner 1/T1 the lag k/(1 + s T1) acts as the integrator k/(s T1)
+            k_int = plant.gain / plant.time_constant_s
+            notes.append(
+                f"the plant's lag T1 = {plant.time_constant_s:.4g} s taken as an integrator "
+                "k/(s T1) (valid above 1/T1)"
+            )
+        g = rules.symmetric_optimum(k_int, plant.small_time_constant_s, a=a)
+        prefilter = g.prefilter_time_s
     elif method == "simc":
         theta = plant.small_time_constant_s
         if plant.integrating:
@@ -422,7 +428,22 @@ def _optimise(plant, model, disc, tf_s, pm_min, gm_min, ms_max) -> rules.Gains:
         ms = float(np.max(1.0 / np.abs(1.0 + lw)))
         return wc, pm, gm, ms
 
+    ss = control.ss(p_sys)
+    ap, bp, cp = (np.asarray(m) for m in (ss.A, ss.B, ss.C))
+
+    def stable(kp, ki):
+        """The closed loop's poles (PI and plant in state space, the reference at zero)."""
+        if model == "discrete":
+            # backward Euler: s_{k+1} = s_k + ki h e_k, u_k = s_k + (kp + ki h) e_k
+            a_cl = np.block([[ap - (kp + ki * h) * bp @ cp, bp], [-ki * h * cp, np.ones((1, 1))]])
+            return bool(np.max(np.abs(np.linalg.eigvals(a_cl))) < 1.0)
+        a_cl = np.block([[ap - kp * bp @ cp, ki * bp], [-cp, np.zeros((1, 1))]])
+        return bool(np.max(np.linalg.eigvals(a_cl).real) < 0.0)
+
     def penalty(x):
+        kp_, ti_ = math.exp(x[0]), math.exp(x[1])
+        if (model == "continuous" or disc == "backward-euler") and not stable(kp_, kp_ / ti_):
+            return 1e6 + x[0]  # unstable: push the gain down
         wc, pm, gm, ms = figures(x)
         short = max(0.0, pm_min - pm) / 10 + max(0.0, gm_min - gm) / 2 + max(0.0, ms - ms_max) * 5
         # integral action within a decade below crossover (T_i w_c <= 10; common practice,
