@@ -386,12 +386,8 @@ def _chain(sc: Scenario, upto: str, inner: dict) -> tuple[control.StateSpace, di
     outer command held (:func:`_resample`).
     """
     d = 1 if sc.control.computation_delay else 0
-    cur = _gains(sc, "current", inner) if upto != "current" else None
-    tbl_c = sc.control.current
-    h_c = tbl_c.sample_time if tbl_c is not None else None
-    if upto == "current":
-        raise ValueError("the current loop's plant is the sampled motor")
-    kp, ki, kd, tbl = cur
+    kp, ki, kd, tbl = _gains(sc, "current", inner)
+    h_c = tbl.sample_time
     ff = np.array([0.0, sc.motor.torque_constant, 0.0]) if tbl.back_emf_feedforward else None
     _, c_d = controller_tf(
         kp, ki, kd, h_c, discretisation=tbl.discretisation, tf_s=tbl.derivative_filter

@@ -378,12 +378,13 @@ def tune(
 
 
 def _default_bandwidth(sc: Scenario, loop: str, plant: LoopPlant) -> float:
-    """A tenth of the sampling frequency (in rad/s) for the current loop; an outer loop a
-    tenth of its inner loop's equivalent bandwidth (common practice, no source: cascaded loops
-    5-10x apart, sampling 10-20x the bandwidth)."""
+    """A tenth of the sampling frequency (in rad/s) for the current loop; for an outer loop a
+    quarter of ``1 / T_sigma``, the bandwidth its small lags (the closed inner loop, the
+    hold, filters) leave (common practice, no source: cascaded loops 5-10x apart, sampling
+    10-20x the bandwidth)."""
     if loop == "current":
         return 2 * math.pi / plant.sample_time_s / 10.0
-    return 1.0 / (10.0 * plant.small_time_constant_s) * 2.5
+    return 0.25 / plant.small_time_constant_s
 
 
 def _optimise(plant, model, disc, tf_s, pm_min, gm_min, ms_max) -> rules.Gains:
