@@ -1,8 +1,9 @@
-"""The ``dcsim`` command: ``run``, ``validate``, ``tune`` and ``demo``.
+"""The ``dcsim`` command: ``run``, ``validate``, ``tune``, ``check``, ``report`` and ``demo``.
 
-Exit codes: 0 success; 2 bad input (scenario file, command line), with one line on stderr
-naming the file, the key, what was expected and what was found; 1 any other failure, with one
-line; 130 interrupted. ``--debug`` shows the full traceback instead.
+Exit codes: 0 success; 3 a design check fails (``check``, ``report``); 2 bad input (scenario
+file, command line), with one line on stderr naming the file, the key, what was expected and
+what was found; 1 any other failure, with one line; 130 interrupted. ``--debug`` shows the
+full traceback instead.
 
 The engine, numpy and matplotlib are imported inside the commands that need them, so that
 ``dcsim --help`` and ``dcsim validate`` start quickly.
@@ -27,6 +28,7 @@ if TYPE_CHECKING:
 EXIT_OK = 0
 EXIT_FAILURE = 1
 EXIT_BAD_INPUT = 2
+EXIT_CHECK_FAILED = 3
 EXIT_INTERRUPTED = 130
 
 DEMO_SCENARIO = Path(__file__).with_name("data") / "demo.toml"
@@ -204,6 +206,66 @@ def _cmd_demo(args: argparse.Namespace) -> int:
     return _run_and_write(str(DEMO_SCENARIO), "the demo scenario", out_dir)
 
 
+class _RunsProgress:
+    """Progress of the several runs of ``check`` / ``report``: one :class:`_Progress` each."""
+
+    def __init__(self, stream: TextIO, label: str) -> None:
+        self.stream, self.label = stream, label
+        self.name: str | None = None
+        self.current: _Progress | None = None
+
+    def __call__(self, name: str, fraction: float) -> None:
+        if name != self.name:
+            self.close()
+            self.name = name
+            self.current = _Progress(self.stream, f"{self.label} [{name} run]").__enter__()
+        assert self.current is not None
+        self.current.update(fraction)
+
+    def close(self) -> None:
+        if self.current is not None:
+            self.current.__exit__(None, None, None)
+            self.current = None
+
+
+def _checked(given: str):
+    """Load a scenario and run all its design checks (with progress on stderr)."""
+    scenario = _load(given)
+
+    from dcsim.checks.session import run_checks
+
+    progress = _RunsProgress(sys.stderr, Path(given).name)
+    try:
+        return run_checks(scenario, progress)
+    finally:
+        progress.close()
+
+
+def _cmd_check(args: argparse.Namespace) -> int:
+    report = _checked(args.scenario)
+    from dcsim.checks.report import format_table
+
+    _write(sys.stdout, format_table(report) + "\n")
+    if args.json:
+        import json
+
+        _write(sys.stdout, json.dumps(report.as_dict(), indent=2, allow_nan=False) + "\n")
+    return EXIT_CHECK_FAILED if report.failed else EXIT_OK
+
+
+def _cmd_report(args: argparse.Namespace) -> int:
+    out_dir = Path(args.out)
+    _check_out_dir(out_dir)
+    report = _checked(args.scenario)
+    from dcsim.checks.report import format_table, write_report
+
+    files = write_report(report, out_dir)
+    lines = [format_table(report), "", f"files written to {_shown(out_dir)}:"]
+    lines += [f"  {_shown(f)}" for f in files]
+    _write(sys.stdout, "\n".join(lines) + "\n")
+    return EXIT_CHECK_FAILED if report.failed else EXIT_OK
+
+
 def _cmd_validate(args: argparse.Namespace) -> int:
     scenario = _load(args.scenario)
     # the run's plan too (step, rows, events against the parameters): what `run` would
@@ -369,8 +431,8 @@ def build_parser() -> argparse.ArgumentParser:
         prog=_PROG,
         description="Time-domain simulation of brushed / permanent-magnet DC motor drives.",
         epilog=(
-            "Exit codes: 0 success, 2 bad input, 1 any other failure, 130 interrupted. "
-            + _CAUTION_EPILOG
+            "Exit codes: 0 success, 3 a design check fails, 2 bad input, 1 any other failure, "
+            "130 interrupted. " + _CAUTION_EPILOG
         ),
     )
     parser.add_argument("--version", action="version", version=f"%(prog)s {_version()}")
@@ -465,6 +527,32 @@ def build_parser() -> argparse.ArgumentParser:
         "--output-base", type=float, default=1.0, help="fixed point: base of the loop's output [SI]"
     )
     tune_.set_defaults(handler=_cmd_tune)
+
+    check = commands.add_parser(
+        "check",
+        parents=[common],
+        help="design checks: fuse, regeneration, thermal, duty cycle, loop margins",
+        description="Run a scenario and the variants its checks need (the rotor locked, the "
+        "supply corners) and print a verdict per check with its margin. Exit 0 when every "
+        "check passes, 3 when any fails, 2 on bad input. Limits and ratings come from the "
+        "scenario's [checks] and [thermal] tables.",
+    )
+    check.add_argument("scenario", metavar="SCENARIO", help="scenario file (TOML)")
+    check.add_argument(
+        "--json", action="store_true", help="also print the verdicts as one JSON object"
+    )
+    check.set_defaults(handler=_cmd_check)
+
+    report = commands.add_parser(
+        "report",
+        parents=[common],
+        help="design checks as one self-contained HTML report with plots and verdicts.json",
+        description="As 'check', then write DIR/report.html (plots embedded, viewable "
+        "offline), DIR/verdicts.json and the PNGs. Exit codes as 'check'.",
+    )
+    report.add_argument("scenario", metavar="SCENARIO", help="scenario file (TOML)")
+    report.add_argument("--out", metavar="DIR", required=True, help="output directory")
+    report.set_defaults(handler=_cmd_report)
 
     demo = commands.add_parser(
         "demo",

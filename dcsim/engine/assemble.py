@@ -371,20 +371,9 @@ def bridge_parameters(sc: Scenario):
             q[B.Q_PRE_V] = sc.precharge.bypass_voltage
     fuse = None
     if sc.fuse is not None:
-        from dcsim.power.fuse import fuse_model_from_keys
+        from dcsim.power.fuse import scenario_fuse_model
 
-        f = sc.fuse
-        table = None
-        if f.table is not None:
-            table = ([p[0] for p in f.table_points], [p[1] for p in f.table_points])
-        fuse = fuse_model_from_keys(
-            f.rated_current,
-            melting_i2t_A2s=f.melting_i2t,
-            min_melting_current_A=f.min_melting_current,
-            table=table,
-            fuse_class=f.generic_class,
-            source=sc.source,
-        )
+        fuse = scenario_fuse_model(sc.fuse, sc.source)
         q[B.Q_FUSE] = 1.0
         q[B.Q_FUSE_IMIN] = fuse.min_melting_current_A
         q[B.Q_FUSE_TAU] = fuse.tau_s

@@ -173,6 +173,17 @@ def simulate(
     SimulationError
         The run could not go on (the message says when and the likely cause).
     """
+    if scenario.thermal is not None:
+        from dcsim.engine.thermal import simulate_with_winding
+
+        return simulate_with_winding(scenario, _simulate_electrical, progress)
+    return _simulate_electrical(scenario, progress)
+
+
+def _simulate_electrical(
+    scenario: Scenario, progress: Callable[[float], None] | None = None
+) -> SimulationResult:
+    """:func:`simulate` without the winding's thermal model."""
     if scenario.bridge.model != "ideal":
         return _simulate_bridge(scenario, progress)
     ki = assemble(scenario)

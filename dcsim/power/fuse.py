@@ -927,6 +927,52 @@ def fuse_model_from_keys(
     return model
 
 
+def scenario_fuse_model(fuse, source: str) -> FuseModel:
+    """The model of a scenario's ``[fuse]`` table (a :class:`dcsim.scenario.schema.Fuse`).
+
+    Parameters
+    ----------
+    fuse : Fuse
+        The loaded table (SI values; a CSV table already read into ``table_points``).
+    source : str
+        Scenario file, for messages.
+    """
+    table = None
+    if fuse.table is not None:
+        table = ([p[0] for p in fuse.table_points], [p[1] for p in fuse.table_points])
+    return fuse_model_from_keys(
+        fuse.rated_current,
+        melting_i2t_A2s=fuse.melting_i2t,
+        min_melting_current_A=fuse.min_melting_current,
+        table=table,
+        fuse_class=fuse.generic_class,
+        source=source,
+    )
+
+
+def derated(model: FuseModel, factor: float) -> FuseModel:
+    """The model of a fuse whose current rating is derated by ``factor`` (hot ambient).
+
+    Every current of the time-current curve scales by ``factor`` at the same time: ``In``
+    and ``I_min`` by ``factor``, the I2t by ``factor^2``; ``tau`` is unchanged. Heat fractions
+    under a given current grow by ``1 / factor^2``.
+
+    Parameters
+    ----------
+    model : FuseModel
+    factor : float
+        Derating factor [-] (e.g. 0.9 at the enclosure's temperature, from the maker's
+        derating curve).
+    """
+    return FuseModel(
+        rated_current_A=model.rated_current_A * factor,
+        melting_i2t_A2s=model.melting_i2t_A2s * factor * factor,
+        min_melting_current_A=model.min_melting_current_A * factor,
+        origin=model.origin,
+        warning=model.warning,
+    )
+
+
 def _table_from_pairs(table: object, *, source: str, key: str) -> tuple[np.ndarray, np.ndarray]:
     rows = list(table) if isinstance(table, (list, tuple)) else None
     if rows is None:

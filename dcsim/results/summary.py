@@ -165,6 +165,14 @@ def format_summary(summary: Mapping[str, Any]) -> str:
 
     if get("bridge_model") is not None:
         _power_stage_rows(summary, row)
+    if get("peak_winding_temperature_K") is not None:
+        peak_c = float(get("peak_winding_temperature_K")) - 273.15
+        row(
+            "winding temperature (thermal model)",
+            f"peak {_num(peak_c, 'degC', digits=4)} at "
+            f"{_time(get('peak_winding_temperature_time_s'))}, final "
+            f"{_num(float(get('final_winding_temperature_K')) - 273.15, 'degC', digits=4)}",
+        )
     if get("control_mode") is not None:
         lines.append("")
         lines.append(f"  {'Closed loop':<{width}}mode {get('control_mode')}")

@@ -48,6 +48,7 @@ from dcsim.scenario.schema import (
     Battery,
     Brake,
     Bridge,
+    Checks,
     Control,
     CurrentLoop,
     Event,
@@ -65,6 +66,7 @@ from dcsim.scenario.schema import (
     SpeedLoop,
     Supply,
     SupplyProfile,
+    Thermal,
     changeable_keys,
     table_of,
 )
@@ -91,6 +93,8 @@ _TABLE_TYPES: dict[str, type] = {
     "control.position": PositionLoop,
     "control.reference": Reference,
     "sensors": Sensors,
+    "thermal": Thermal,
+    "checks": Checks,
 }
 """Dataclass of each table; its fields are the table's keys in :data:`KEYS`."""
 
@@ -826,7 +830,46 @@ def _rule_voltage_only_open_loop(state: dict[str, Any], given: set[str], show: _
     return None
 
 
+def _rule_design_checks(state: dict[str, Any], given: set[str], show: _Show) -> _Problem:
+    """The duty cycle, the thermal model and the check limits must make sense together."""
+    cycle = state.get("simulation.cycle_time")
+    if cycle is not None and cycle < state["simulation.duration"]:
+        return (
+            "simulation.cycle_time",
+            f"expected a cycle time at least as long as the run (simulation.duration "
+            f"{show('simulation.duration')}: the run is one cycle), found "
+            f"{show('simulation.cycle_time')}",
+        )
+    if state.get("checks.fuse_margin", 0.0) > 1.0:
+        return (
+            "checks.fuse_margin",
+            "expected a fraction of melting up to 1 (1 = the element melts), found "
+            f"{show('checks.fuse_margin')}",
+        )
+    lo, hi = state.get("checks.supply_min"), state.get("checks.supply_max")
+    if lo is not None and hi is not None and not lo < hi:
+        return (
+            "checks.supply_max",
+            f"expected a supply corner above checks.supply_min ({show('checks.supply_min')}), "
+            f"found {show('checks.supply_max')}",
+        )
+    if "thermal.resistance" in state:
+        t0 = state.get("thermal.initial_temperature")
+        for name in ("thermal.ambient", "thermal.reference_temperature"):
+            if state[name] <= 0.0:
+                return (name, f"expected a temperature above absolute zero, found {show(name)}")
+        if t0 is not None and cycle is not None:
+            return (
+                "thermal.initial_temperature",
+                "expected no initial winding temperature with simulation.cycle_time (a repeated "
+                "duty cycle starts each cycle at its periodic steady state), found "
+                f"{show('thermal.initial_temperature')}",
+            )
+    return None
+
+
 _RULES: tuple[_Rule, ...] = (
+    _rule_design_checks,
     _rule_intervals_within_run,
     _rule_bus_needs_resistance,
     _rule_voltage_only_open_loop,
@@ -882,6 +925,14 @@ def _assemble(read: _Read, source: str, *, result_source: str) -> Scenario:
                 key=f"{_EVENTS}[{event.index}].at",
             )
         for name, _ in event.changes:
+            if name == "motor.resistance" and "thermal" in present and values["thermal.coupled"]:
+                raise ScenarioError(
+                    "expected no event on motor.resistance when [thermal] coupled = true (the "
+                    "winding temperature sets the resistance), found one at "
+                    f"{event.at_shown}; set thermal.coupled = false to keep the events",
+                    source=source,
+                    key=f"{_EVENTS}[{event.index}].set.motor.resistance",
+                )
             if name == "supply.voltage" and present & {"battery", "supply_profile"}:
                 part = "battery" if "battery" in present else "supply_profile"
                 raise ScenarioError(

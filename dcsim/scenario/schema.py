@@ -86,6 +86,18 @@ def _q(unit, noun, example, default=REQUIRED, constraint="nonnegative", changeab
     )
 
 
+INSULATION_CLASS_LIMITS_K = {
+    "A": 378.15,
+    "E": 393.15,
+    "B": 403.15,
+    "F": 428.15,
+    "H": 453.15,
+    "N": 473.15,
+    "R": 493.15,
+}
+"""Thermal class limits of IEC 60085 (105, 120, 130, 155, 180, 200, 220 degC) [K]: the
+highest temperature the insulation system is rated for (IEC 60085, thermal classes)."""
+
 CONTROLLED = "<controlled>"
 """Placeholder unit of reference values: A, rad/s or rad, as the control mode says."""
 
@@ -153,6 +165,7 @@ KEYS: dict[str, dict[str, KeySpec]] = {
         "duration": _q("s", "a time", "1 s", constraint="positive"),
         "record_interval": _q("s", "a time", "50 us", default=None, constraint="positive"),
         "step": _q("s", "a time", "1 us", default=None, constraint="positive"),
+        "cycle_time": _q("s", "a time", "60 s", default=None, constraint="positive"),
     },
     "motor": {
         "kind": KeySpec(
@@ -247,6 +260,14 @@ KEYS: dict[str, dict[str, KeySpec]] = {
             kind="choice",
             default=None,
             noun="a generic fuse class",
+            example="quick-acting",
+            choices=("quick-acting", "time-lag"),
+        ),
+        "characteristic": KeySpec(
+            None,
+            kind="choice",
+            default=None,
+            noun="a fuse characteristic",
             example="quick-acting",
             choices=("quick-acting", "time-lag"),
         ),
@@ -364,6 +385,48 @@ KEYS: dict[str, dict[str, KeySpec]] = {
         "bus_voltage_range": _q("V", "a voltage", "60 V", default=0.0),
         "seed": _q("", "a whole number", "1", default=0.0),
     },
+    "thermal": {
+        "resistance": _q("K/W", "a thermal resistance", "1.5 K/W", constraint="positive"),
+        "time_constant": _q("s", "a time", "600 s", constraint="positive"),
+        "ambient": _q("K", "a temperature", "40 degC", default=313.15, constraint="positive"),
+        "initial_temperature": _q(
+            "K", "a temperature", "40 degC", default=None, constraint="positive"
+        ),
+        "reference_temperature": _q(
+            "K", "a temperature", "20 degC", default=293.15, constraint="positive"
+        ),
+        "insulation_class": KeySpec(
+            None,
+            kind="choice",
+            default=None,
+            noun="an insulation class",
+            example="F",
+            choices=tuple(INSULATION_CLASS_LIMITS_K),
+        ),
+        "hot_spot_allowance": _q("delta_degC", "a temperature difference", "10 K", default=10.0),
+        "coupled": KeySpec(None, kind="bool", default=True, noun="true or false", example="true"),
+    },
+    "checks": {
+        "fuse_margin": _q("", "a fraction of melting", "0.75", default=0.75, constraint="positive"),
+        "fuse_derating": _q(
+            "", "an ambient derating factor", "0.9", default=1.0, constraint="positive"
+        ),
+        "stall_clear_time": _q("s", "a time", "2 s", default=None, constraint="positive"),
+        "supply_min": _q("V", "a voltage", "10.5 V", default=None, constraint="positive"),
+        "supply_max": _q("V", "a voltage", "14.4 V", default=None, constraint="positive"),
+        "capacitor_rated_voltage": _q(
+            "V", "a voltage", "35 V", default=None, constraint="positive"
+        ),
+        "allowed_bus_rise": _q("V", "a voltage", "6 V", default=None, constraint="positive"),
+        "brake_pulse_energy": _q("J", "an energy", "200 J", default=None, constraint="positive"),
+        "brake_continuous_power": _q("W", "a power", "25 W", default=None, constraint="positive"),
+        "continuous_current": _q("A", "a current", "4 A", default=None, constraint="positive"),
+        "peak_current": _q("A", "a current", "40 A", default=None, constraint="positive"),
+        "min_phase_margin": _q("deg", "an angle", "45 deg", default=45.0, constraint="positive"),
+        "min_gain_margin": _q(
+            "dB", "a gain ratio in dB", "6 dB", default=6.0, constraint="positive"
+        ),
+    },
     "about": {
         "title": KeySpec(None, kind="text", default="", noun="a text", example="'Winch'"),
         "description": KeySpec(None, kind="text", default="", noun="a text", example="'...'"),
@@ -384,6 +447,8 @@ OPTIONAL_TABLES = (
     "control.position",
     "control.reference",
     "sensors",
+    "thermal",
+    "checks",
 )
 """Tables that describe a part the drive may not have: absent means no such part."""
 DERIVED_FIELDS = {
@@ -419,11 +484,17 @@ class Simulation:
         Spacing of trace rows [s]; ``None`` lets dcsim choose.
     step : float or None
         Plant integration step [s]; ``None`` lets dcsim choose from the time constants.
+    cycle_time : float or None
+        The run is one duty cycle, repeated every ``cycle_time`` with the drive off (no
+        current) for the rest of it [s] (>= duration). Used by the winding's thermal model (the
+        periodic steady state: the hottest cycle), the fuse's repeated-start check, the RMS
+        current and the average brake power. ``None``: the run happens once.
     """
 
     duration: float
     record_interval: float | None = None
     step: float | None = None
+    cycle_time: float | None = None
 
 
 @dataclass(frozen=True)
@@ -676,6 +747,10 @@ class Fuse:
     generic_class : str or None
         ``"quick-acting"`` or ``"time-lag"``: a generic model inside the IEC 60127-2 gates of
         the class (with a warning: the maker's curve should replace it).
+    characteristic : str or None
+        The fuse's IEC 60127-2 characteristic, ``"quick-acting"`` (F) or ``"time-lag"`` (T):
+        its pre-arcing time gates are drawn on the time-current plot and the model is held
+        against them (a generic class implies its own).
     table_points : tuple of (float, float)
         The table as read (filled by the loader).
     """
@@ -685,6 +760,7 @@ class Fuse:
     min_melting_current: float | None = None
     table: str | None = None
     generic_class: str | None = None
+    characteristic: str | None = None
     table_points: tuple[tuple[float, float], ...] = ()
 
 
@@ -948,6 +1024,98 @@ class Control:
 
 
 @dataclass(frozen=True)
+class Thermal:
+    """First-order thermal model of the armature winding (winding -> ambient).
+
+    ``C dT/dt = P_cu - (T - T_amb) / R_th`` with ``tau = R_th C``: a lumped body behind one
+    thermal resistance (Incropera et al., *Fundamentals of Heat and Mass Transfer*, 6th ed.,
+    sec. 5.1-5.3). The copper loss ``P_cu = R(T) i^2`` with ``R(T) = R20 (1 + alpha20 (T -
+    20 degC))``, alpha20 = 0.00393 /K (IEC 60028).
+
+    Attributes
+    ----------
+    resistance : float
+        Thermal resistance winding to ambient [K/W].
+    time_constant : float
+        Thermal time constant ``R_th C`` [s].
+    ambient : float
+        Ambient temperature [K] (files may write ``"40 degC"``).
+    initial_temperature : float or None
+        Winding temperature at t = 0 [K]; ``None``: the ambient (or, with
+        ``simulation.cycle_time``, the periodic steady state).
+    reference_temperature : float
+        Temperature at which ``motor.resistance`` is given [K].
+    insulation_class : str or None
+        IEC 60085 thermal class (A, E, B, F, H, N, R) the winding is held against.
+    hot_spot_allowance : float
+        How much hotter the hottest spot runs than the average winding temperature the model
+        gives [K].
+    coupled : bool
+        The armature resistance of the electrical model follows the winding temperature.
+    """
+
+    resistance: float
+    time_constant: float
+    ambient: float = 313.15
+    initial_temperature: float | None = None
+    reference_temperature: float = 293.15
+    insulation_class: str | None = None
+    hot_spot_allowance: float = 10.0
+    coupled: bool = True
+
+
+@dataclass(frozen=True)
+class Checks:
+    """Limits and ratings the design checks (``dcsim check``) hold the run against.
+
+    Each rating is optional: a check without its rating is reported as not applicable.
+
+    Attributes
+    ----------
+    fuse_margin : float
+        Largest peak heat fraction of the fuse over a start, after derating [-].
+    fuse_derating : float
+        Ambient derating factor of the fuse's current rating [-] (0.9: the fuse carries 90 %
+        of its nominal current at the enclosure's temperature; heat fractions grow by
+        ``1 / derating^2``).
+    stall_clear_time : float or None
+        With the rotor locked, the fuse must melt within this time (what the motor and its
+        wiring withstand at that current) [s].
+    supply_min, supply_max : float or None
+        Supply corners [V]: the fuse's start-up check also runs at ``supply_max``, its stall
+        check at ``supply_min``.
+    capacitor_rated_voltage : float or None
+        Rated voltage of the bus capacitor [V].
+    allowed_bus_rise : float or None
+        Bus voltage rise allowed on a stop without a chopper, for the suggested capacitance [V].
+    brake_pulse_energy, brake_continuous_power : float or None
+        Brake resistor ratings: energy of one stop [J], continuous power [W].
+    continuous_current : float or None
+        Continuous (thermal) current rating of the motor [A], against the RMS current.
+    peak_current : float or None
+        Peak current limit of the motor (demagnetisation or brushes) [A].
+    min_phase_margin : float
+        [deg]
+    min_gain_margin : float
+        [dB]
+    """
+
+    fuse_margin: float = 0.75
+    fuse_derating: float = 1.0
+    stall_clear_time: float | None = None
+    supply_min: float | None = None
+    supply_max: float | None = None
+    capacitor_rated_voltage: float | None = None
+    allowed_bus_rise: float | None = None
+    brake_pulse_energy: float | None = None
+    brake_continuous_power: float | None = None
+    continuous_current: float | None = None
+    peak_current: float | None = None
+    min_phase_margin: float = 45.0
+    min_gain_margin: float = 6.0
+
+
+@dataclass(frozen=True)
 class About:
     """Free text describing the scenario."""
 
@@ -979,7 +1147,7 @@ class Scenario:
     ----------
     simulation, motor, load, supply, control, about, bridge
         The tables of the file.
-    brake, protection, precharge, battery, fuse, supply_profile, sensors
+    brake, protection, precharge, battery, fuse, supply_profile, sensors, thermal, checks
         Optional parts; ``None`` when the file has no such table.
     events : tuple of Event
         Sorted by time (stable for equal times, in file order).
@@ -1001,6 +1169,8 @@ class Scenario:
     fuse: Fuse | None = None
     supply_profile: SupplyProfile | None = None
     sensors: Sensors | None = None
+    thermal: Thermal | None = None
+    checks: Checks | None = None
     events: tuple[Event, ...] = ()
     source: str = "<scenario>"
 

@@ -61,6 +61,8 @@ _TABLE_ORDER = (
     "control.position",
     "control.reference",
     "sensors",
+    "thermal",
+    "checks",
 )
 """Order of the tables in a written file (every table of :data:`KEYS` once)."""
 

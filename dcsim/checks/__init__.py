@@ -1,0 +1,1 @@
+"""Design checks: verdicts on fuse coordination, regeneration, thermal and duty, loop margins."""
