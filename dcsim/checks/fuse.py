@@ -383,6 +383,9 @@ def time_current_figure(sc: Scenario, runs: CheckRuns, model: FuseModel, hot: Fu
             ls="--",
             label="melting, derated",
         )
+    if sc.fuse.table_points:
+        pts = np.asarray(sc.fuse.table_points, dtype=float)
+        ax.loglog(pts[:, 0], pts[:, 1], "D", ms=4, color="#22313f", label="maker's table (fitted)")
     name = _characteristic(sc)
     if name is not None:
         for g in IEC_60127_2_GATES[name]:

@@ -385,7 +385,9 @@ td.num { text-align: right; white-space: nowrap; }
 td.limit { white-space: nowrap; }
 td.neg { color: #b42318; font-weight: bold; }
 .name { display: block; color: #5b6775; font-size: 0.85em; }
-.detail { white-space: pre-line; }
+.detail { white-space: pre-line; overflow-wrap: anywhere; }
+.name { overflow-wrap: anywhere; }
+.scroll { overflow-x: auto; }
 .badge { display: inline-block; min-width: 3.6em; padding: 0.1em 0.45em; border-radius: 3px;
   color: #ffffff; font-weight: bold; font-size: 0.85em; text-align: center;
   letter-spacing: 0.03em; }
@@ -566,7 +568,7 @@ def report_html(report: CheckReport, pngs: Mapping[str, bytes], files: Mapping[s
         f"&mdash; {_e(counts)}{_e(warn_note)}.</p>",
         "<section>",
         "<h2>Verdicts</h2>",
-        '<table class="verdicts">',
+        '<div class="scroll"><table class="verdicts">',
         "<thead><tr>"
         + "".join(
             f'<th scope="col">{h}</th>'
@@ -579,7 +581,7 @@ def report_html(report: CheckReport, pngs: Mapping[str, bytes], files: Mapping[s
         out.extend(_verdict_row(v) for v in report.verdicts)
     else:
         out.append('<tr><td colspan="6">No verdicts.</td></tr>')
-    out += ["</tbody>", "</table>", "</section>"]
+    out += ["</tbody>", "</table></div>", "</section>"]
 
     shown: set[str] = set()
 
