@@ -240,7 +240,7 @@ def _stop_verdicts(sc: Scenario, ck: Checks, result: SimulationResult, stops: li
     if not stops:
         why = "the run has no regenerative stop (the bridge never returns power to the bus)"
         for name, title in (
-            ("regeneration.stop_energy", "Energy of the hardest stop"),
+            ("regeneration.stop_energy", "Energy returned on the hardest stop or lowering"),
             ("regeneration.brake_pulse_energy", "Brake resistor pulse energy"),
             ("regeneration.brake_continuous_power", "Brake resistor continuous power"),
         ):
@@ -251,7 +251,7 @@ def _stop_verdicts(sc: Scenario, ck: Checks, result: SimulationResult, stops: li
         Verdict(
             "regeneration.stop_energy",
             GROUP,
-            "Energy of the hardest stop",
+            "Energy returned on the hardest stop or lowering",
             "info",
             figure=hard.to_bus_J,
             unit="J",

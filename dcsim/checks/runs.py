@@ -1,9 +1,14 @@
 """The simulations the checks need: the scenario itself and its variants.
 
 - ``nominal``: the scenario as written.
-- ``high_supply``: the same at ``checks.supply_max`` (the hardest start for the fuse).
+- ``high_supply``: the same at ``checks.supply_max`` (the hardest start for the fuse). In
+  voltage mode the commanded voltage scales with the supply (the same duty: an open-loop PWM
+  drive passes a higher supply on to the armature).
 - ``stall``: the rotor locked from t = 0 for 1.25 x ``checks.stall_clear_time``, at
-  ``checks.supply_min`` when given (the slowest clearing), everything else as written.
+  ``checks.supply_min`` when given (the slowest clearing), everything else as written (a
+  supply profile or events included). With a ``[thermal]`` table the stalled winding starts at
+  the nominal run's hottest temperature (hot copper draws the least stall current: the slowest
+  clearing) and is not repeated.
 
 A run that stops (the kernel's :class:`~dcsim.errors.SimulationError`) is kept as its message:
 the checks that needed it fail and say why.
@@ -64,27 +69,31 @@ class CheckRuns:
         return None if run is None else run.result
 
 
-def variants(sc: Scenario) -> list[tuple[str, str, Callable[[], Scenario]]]:
-    """``(name, description, build)`` of every run the scenario's checks need."""
-    out: list[tuple[str, str, Callable[[], Scenario]]] = [
-        ("nominal", "the scenario as written", lambda: sc)
+def variants(sc: Scenario) -> list[tuple[str, str, Callable[[dict[str, Run]], Scenario]]]:
+    """``(name, description, build)`` of every run the scenario's checks need, in order;
+    ``build(done)`` gets the runs made so far."""
+    out: list[tuple[str, str, Callable[[dict[str, Run]], Scenario]]] = [
+        ("nominal", "the scenario as written", lambda done: sc)
     ]
     ck = sc.checks
     if sc.fuse is not None and ck is not None and ck.supply_max is not None:
         out.append(
             (
                 "high_supply",
-                f"supply.voltage = {ck.supply_max:g} V (checks.supply_max)",
-                lambda: _at_supply(sc, ck.supply_max, "checks.supply_max"),
+                f"supply.voltage = {ck.supply_max:g} V (checks.supply_max)"
+                + (", the same duty" if sc.control.mode == "voltage" else ""),
+                lambda done: _at_supply(sc, ck.supply_max, "checks.supply_max"),
             )
         )
     if sc.fuse is not None and ck is not None and ck.stall_clear_time is not None:
         where = "" if ck.supply_min is None else f", supply.voltage = {ck.supply_min:g} V"
+        if sc.thermal is not None:
+            where += ", the winding starting at the nominal run's hottest"
         out.append(
             (
                 "stall",
                 f"rotor locked from t = 0 for {STALL_RUN_FACTOR * ck.stall_clear_time:g} s{where}",
-                lambda: _stalled(sc),
+                lambda done: _stalled(sc, done.get("nominal")),
             )
         )
     return out
@@ -95,7 +104,7 @@ def run_all(sc: Scenario, progress: Callable[[str, float], None] | None = None) 
     runs: dict[str, Run] = {}
     for name, description, build in variants(sc):
         try:
-            variant = build()
+            variant = build(runs)
         except ScenarioError as err:
             runs[name] = Run(name, description, error=f"cannot build this run: {err}")
             continue
@@ -117,10 +126,13 @@ def _at_supply(sc: Scenario, voltage_V: float, key: str) -> Scenario:
             source=sc.source,
             key=key,
         )
-    return sc.with_changes({"supply.voltage": voltage_V})
+    changes: dict[str, float] = {"supply.voltage": voltage_V}
+    if sc.control.mode == "voltage" and sc.supply.voltage > 0.0:
+        changes["control.voltage"] = sc.control.voltage * voltage_V / sc.supply.voltage
+    return sc.with_changes(changes)
 
 
-def _stalled(sc: Scenario) -> Scenario:
+def _stalled(sc: Scenario, nominal: Run | None) -> Scenario:
     ck = sc.checks
     assert ck is not None and ck.stall_clear_time is not None
     base = sc if ck.supply_min is None else _at_supply(sc, ck.supply_min, "checks.supply_min")
@@ -131,14 +143,14 @@ def _stalled(sc: Scenario) -> Scenario:
         if e.at <= duration
     )
     events = tuple(e for e in events if e.changes)
-    cycle = base.simulation.cycle_time
     simulation = dataclasses.replace(
-        base.simulation,
-        duration=duration,
-        record_interval=None,
-        cycle_time=None if cycle is None else max(cycle, duration),
+        base.simulation, duration=duration, record_interval=None, cycle_time=None
     )
+    thermal = base.thermal
+    if thermal is not None and nominal is not None and nominal.result is not None:
+        hottest = float(nominal.result.summary["peak_winding_temperature_K"])
+        thermal = dataclasses.replace(thermal, initial_temperature=hottest)
     load = dataclasses.replace(base.load, locked=True)
-    return dataclasses.replace(base, simulation=simulation, load=load, events=events).with_changes(
-        {}
-    )
+    return dataclasses.replace(
+        base, simulation=simulation, load=load, events=events, thermal=thermal
+    ).with_changes({})
