@@ -1,4 +1,5 @@
-"""The ``dcsim`` command: ``run``, ``validate``, ``tune``, ``check``, ``report`` and ``demo``.
+"""The ``dcsim`` command: ``run``, ``validate``, ``tune``, ``check``, ``report``, ``motor``,
+``fit`` and ``demo``.
 
 Exit codes: 0 success; 3 a design check fails (``check``, ``report``); 2 bad input (scenario
 file, command line), with one line on stderr naming the file, the key, what was expected and
@@ -177,10 +178,18 @@ def _check_out_dir(out_dir: Path) -> None:
         )
 
 
+def _warn_catalogue(scenario: Scenario) -> None:
+    """One ``dcsim: warning:`` line on stderr per catalogue figure the motor model disagrees
+    with by more than 5 % (``[motor]`` catalogue data; see ``dcsim motor``)."""
+    for message in getattr(scenario.motor, "catalogue_warnings", ()):
+        _write(sys.stderr, f"{_PROG}: warning: {scenario.source}: motor: {message}\n")
+
+
 def _run_and_write(given: str, label: str, out_dir: Path) -> int:
     """Shared body of ``run`` and ``demo``."""
     _check_out_dir(out_dir)
     scenario = _load(given)
+    _warn_catalogue(scenario)
 
     from dcsim.engine.run import simulate
     from dcsim.results.io import write_outputs
@@ -268,6 +277,7 @@ def _cmd_report(args: argparse.Namespace) -> int:
 
 def _cmd_validate(args: argparse.Namespace) -> int:
     scenario = _load(args.scenario)
+    _warn_catalogue(scenario)
     # the run's plan too (step, rows, events against the parameters): what `run` would
     # refuse, `validate` refuses. assemble needs numpy only, not the compiled kernel.
     from dcsim.engine.assemble import assemble, assemble_bridge
@@ -400,6 +410,59 @@ def _cmd_tune(args: argparse.Namespace) -> int:
         if written:
             lines += ["", "files written:"] + [f"  {_shown(f)}" for f in written]
         _write(sys.stdout, "\n".join(lines) + "\n")
+    return EXIT_OK
+
+
+def _cmd_motor(args: argparse.Namespace) -> int:
+    scenario = _load(args.scenario)
+    from dcsim.scenario.datasheet import format_motor, motor_as_dict
+
+    if args.json:
+        import json
+
+        data = {"source": scenario.source, **motor_as_dict(scenario.motor)}
+        data["caution"] = _CAUTION_EPILOG
+        _write(sys.stdout, json.dumps(data, indent=2, allow_nan=False) + "\n")
+        return EXIT_OK
+    title = f"{args.scenario}: {scenario.about.title}" if scenario.about.title else args.scenario
+    text = format_motor(scenario.motor, title=title)
+    _write(sys.stdout, f"{text}\n\n{_CAUTION_EPILOG}\n")
+    return EXIT_OK
+
+
+def _cmd_fit(args: argparse.Namespace) -> int:
+    given = args.log
+    if not given.strip():
+        raise _BadInput("expected a CSV motor log, found an empty file name")
+    out_dir = Path(args.out) if args.out else Path("dcsim-fit") / Path(given).stem
+    _check_out_dir(out_dir)
+    from dcsim.identify.report import FIT_FILES
+
+    if not args.force:
+        for name in FIT_FILES:
+            if (out_dir / name).exists():
+                raise _BadInput(
+                    f"{out_dir / name}: expected a new file (or --force to replace it), found "
+                    "an existing file"
+                )
+    from dcsim.identify.fit import fit_motor
+    from dcsim.identify.log import read_log_csv
+    from dcsim.identify.report import format_fit, write_fit
+
+    result = fit_motor(read_log_csv(given))
+    files = write_fit(result, out_dir, force=args.force)
+    if args.json:
+        import json
+
+        data = result.as_dict()
+        data["files"] = [str(f) for f in files]
+        data["caution"] = _CAUTION_EPILOG
+        _write(sys.stdout, json.dumps(data, indent=2, allow_nan=False) + "\n")
+        return EXIT_OK
+    lines = [format_fit(result), "", "files written:"]
+    lines += [f"  {_shown(f)}" for f in files]
+    lines += ["", _CAUTION_EPILOG]
+    _write(sys.stdout, "\n".join(lines) + "\n")
     return EXIT_OK
 
 
@@ -554,6 +617,36 @@ def build_parser() -> argparse.ArgumentParser:
     report.add_argument("--out", metavar="DIR", required=True, help="output directory")
     report.set_defaults(handler=_cmd_report)
 
+    motor = commands.add_parser(
+        "motor",
+        parents=[common],
+        help="the motor model a scenario derives, and its catalogue consistency table",
+        description="Print the [motor] model the scenario gives (SI and catalogue units, and "
+        "where each key came from) and the consistency table of its catalogue figures: each "
+        "figure against the model's value, the difference in %%, ok or WARN beyond 5 %%.",
+    )
+    motor.add_argument("scenario", metavar="SCENARIO", help="scenario file (TOML)")
+    motor.add_argument("--json", action="store_true", help="print one JSON object")
+    motor.set_defaults(handler=_cmd_motor)
+
+    fit = commands.add_parser(
+        "fit",
+        parents=[common],
+        help="fit R, L, K, J and friction to a measured log and write the [motor] table",
+        description="Fit resistance, inductance, torque constant, inertia, viscous and "
+        "Coulomb friction to a CSV log (header 'time [s], voltage [V], current [A], speed "
+        "[rpm]' or with position; units in brackets), with 95 %% confidence intervals; write "
+        "DIR/motor.toml (a loadable scenario with the fitted [motor]) and DIR/fit.png "
+        "(measured against fitted).",
+    )
+    fit.add_argument("log", metavar="LOG.csv", help="measured log (CSV)")
+    fit.add_argument(
+        "--out", metavar="DIR", help="output directory (default: ./dcsim-fit/<log file stem>)"
+    )
+    fit.add_argument("--json", action="store_true", help="print one JSON object")
+    fit.add_argument("--force", action="store_true", help="replace existing files in DIR")
+    fit.set_defaults(handler=_cmd_fit)
+
     demo = commands.add_parser(
         "demo",
         parents=[common],
@@ -591,7 +684,8 @@ def main(argv: Sequence[str] | None = None) -> int:
     handler: Callable[[argparse.Namespace], int] | None = getattr(args, "handler", None)
     if handler is None:
         _error_line(
-            "no command given; choose one of run, validate, tune, demo (see 'dcsim --help')"
+            "no command given; choose one of run, validate, check, report, tune, motor, fit, "
+            "demo (see 'dcsim --help')"
         )
         return EXIT_BAD_INPUT
 

@@ -171,6 +171,14 @@ def thermal_figure(sc: Scenario, res, limit_K: float) -> Figure:
         lw=1.4,
         label="winding (average, model)",
     )
+    if "housing_temperature_K" in res.trace:
+        ax.plot(
+            t,
+            np.asarray(res.trace["housing_temperature_K"]) - 273.15,
+            color="#8a5a2b",
+            lw=1.2,
+            label="housing (model)",
+        )
     ax.axhline(
         celsius(limit_K - th.hot_spot_allowance),
         color="#22313f",

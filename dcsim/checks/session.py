@@ -49,6 +49,7 @@ def run_checks(sc: Scenario, progress: Callable[[str, float], None] | None = Non
         from dcsim.results.plots import plot_overview
 
         figures["overview"] = plot_overview(nominal)
+    warnings += [f"motor catalogue data: {w}" for w in sc.motor.catalogue_warnings]
     if sc.thermal is not None and not sc.thermal.coupled:
         warnings.append(
             "thermal.coupled = false: the armature resistance stays at its reference value; "

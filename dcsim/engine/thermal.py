@@ -1,4 +1,5 @@
-"""Runs with the winding's thermal model: the armature resistance following its temperature.
+"""Runs with the machine's thermal model: the armature resistance (and, with magnets, the
+torque constant) following the temperatures.
 
 The winding's temperature changes over seconds to hours, the armature current over
 milliseconds, so the two are coupled by *waveform relaxation* ([1]_): the electrical run is
@@ -8,7 +9,9 @@ at the segment's middle), and the temperature is recomputed from that run's copp
 two passes agree within :data:`SETTLED_K`. The coupling is weak (``alpha20`` times the rise is
 of order 0.1-0.4), so a few passes settle it; a pass that does not settle means the
 winding has no steady state (a current-controlled winding whose loss grows with its
-temperature faster than its cooling), which is reported as such.
+temperature faster than its cooling), which is reported as such. With the two-node network
+(winding -> housing -> ambient) and a magnet coefficient, the torque constant follows the
+housing node's temperature the same way (events on ``motor.torque_constant``).
 
 The loss between trace rows is the row's ``R i^2``, linear in between, scaled so that it
 integrates to the run's exact copper loss (the kernel's Simpson integral at full rate): the
@@ -30,7 +33,14 @@ from collections.abc import Callable
 import numpy as np
 
 from dcsim.errors import SimulationError
-from dcsim.plant.thermal import periodic_start_rise, resistance_at, temperature_rise
+from dcsim.plant.thermal import (
+    free_response,
+    network_matrices,
+    network_rise,
+    periodic_start_rises,
+    resistance_at,
+    torque_constant_at,
+)
 from dcsim.results.trace import SimulationResult, Summary, Trace
 from dcsim.scenario.schema import Event, Scenario
 
@@ -68,45 +78,55 @@ def simulate_with_winding(
     Returns
     -------
     SimulationResult
-        The last pass, with the column ``winding_temperature_K`` [K] (and
-        ``winding_resistance_ohm`` [ohm]) and the summary keys ``peak_winding_temperature_K``,
-        ``final_winding_temperature_K``, ``initial_winding_temperature_K``,
-        ``winding_temperature_rise_K`` (peak over the ambient), ``thermal_passes``.
+        The last pass, with the columns ``winding_temperature_K`` [K] and
+        ``winding_resistance_ohm`` [ohm] (two-node: ``housing_temperature_K`` [K]; with magnets
+        ``torque_constant_Nm_A``) and the summary keys ``peak_winding_temperature_K``,
+        ``peak_winding_temperature_time_s``, ``final_winding_temperature_K``,
+        ``initial_winding_temperature_K``, ``winding_temperature_rise_K`` (peak over the
+        ambient), ``thermal_passes`` (two-node also ``peak_housing_temperature_K``,
+        ``final_housing_temperature_K``).
     """
     th = scenario.thermal
     assert th is not None
-    duration = scenario.simulation.duration
-    cycle = scenario.simulation.cycle_time
+    a, b = network_matrices(th)
     if not th.coupled:
         result = run(scenario, progress)
         r = np.full(result.trace.rows, scenario.motor.resistance)
-        temp, start = _temperatures(scenario, result, r)
-        return _finish(scenario, result, temp, r, start, passes=1)
+        temps, start = _temperatures(scenario, result, r, a, b)
+        return _finish(scenario, result, temps, r, None, start, passes=1)
 
-    segments = int(
-        min(
-            MAX_SEGMENTS,
-            max(MIN_SEGMENTS, math.ceil(SEGMENTS_PER_TAU * duration / th.time_constant)),
-        )
-    )
+    duration = scenario.simulation.duration
+    per_tau = math.ceil(SEGMENTS_PER_TAU * duration / _fastest_relevant_tau(th, a))
+    segments = int(min(MAX_SEGMENTS, max(MIN_SEGMENTS, per_tau)))
     edges = np.linspace(0.0, duration, segments + 1)
     mids = 0.5 * (edges[:-1] + edges[1:])
-    start_K = th.initial_temperature if th.initial_temperature is not None else th.ambient
-    seg_temp = np.full(segments, start_K)
+    x_start = _initial_rises(th, a)
+    seg_temp = np.tile(th.ambient + x_start, (segments, 1))
+    magnets = th.two_node and th.magnet_coefficient_per_K != 0.0
     change = math.inf
     for n in range(MAX_PASSES):
-        seg_r = resistance_at(scenario.motor.resistance, seg_temp, th.reference_temperature)
-        variant = _with_resistances(scenario, edges, seg_r)
+        seg_r = resistance_at(scenario.motor.resistance, seg_temp[:, 0], th.reference_temperature)
+        seg_k = None
+        if magnets:
+            seg_k = torque_constant_at(
+                scenario.motor.torque_constant,
+                seg_temp[:, 1],
+                th.reference_temperature,
+                th.magnet_coefficient_per_K,
+            )
+        variant = _with_segments(scenario, edges, seg_r, seg_k)
         result = run(variant, _scaled(progress, n))
         t = result.trace["time_s"]
         row_seg = np.clip(np.searchsorted(edges, t, side="right") - 1, 0, segments - 1)
         r_rows = seg_r[row_seg]
-        temp, start = _temperatures(scenario, result, r_rows)
-        new_seg = np.interp(mids, t, temp)
+        k_rows = None if seg_k is None else seg_k[row_seg]
+        temps, start = _temperatures(scenario, result, r_rows, a, b)
+        new_seg = np.column_stack([np.interp(mids, t, temps[:, j]) for j in range(temps.shape[1])])
         change = float(np.max(np.abs(new_seg - seg_temp)))
         if change <= SETTLED_K:
-            return _finish(scenario, result, temp, r_rows, start, passes=n + 1)
+            return _finish(scenario, result, temps, r_rows, k_rows, start, passes=n + 1)
         seg_temp = new_seg
+    cycle = scenario.simulation.cycle_time
     raise SimulationError(
         f"{scenario.source}: the winding temperature did not settle in {MAX_PASSES} passes of "
         f"the thermal coupling (last change {change:.3g} K): the winding has no steady state "
@@ -117,6 +137,21 @@ def simulate_with_winding(
     )
 
 
+def _fastest_relevant_tau(th, a: np.ndarray) -> float:
+    """The time constant the resistance updates must resolve: the winding node's [s]."""
+    if not th.two_node:
+        return float(th.time_constant)
+    return float(1.0 / np.max(np.abs(np.linalg.eigvals(a))))
+
+
+def _initial_rises(th, a: np.ndarray) -> np.ndarray:
+    """Node rises at t = 0 before any pass (the periodic start is found from the first pass)."""
+    n = a.shape[0]
+    if th.initial_temperature is None:
+        return np.zeros(n)
+    return np.full(n, th.initial_temperature - th.ambient)  # the machine soaked at it
+
+
 def _scaled(progress, n: int):
     if progress is None:
         return None
@@ -124,21 +159,28 @@ def _scaled(progress, n: int):
     return lambda f: progress(lo + width * f)
 
 
-def _with_resistances(sc: Scenario, edges: np.ndarray, seg_r: np.ndarray) -> Scenario:
-    """The scenario with the resistance of each segment set by events (t = 0 in the motor)."""
+def _with_segments(
+    sc: Scenario, edges: np.ndarray, seg_r: np.ndarray, seg_k: np.ndarray | None
+) -> Scenario:
+    """The scenario with each segment's resistance (and torque constant) set by events."""
     motor = dataclasses.replace(sc.motor, resistance=float(seg_r[0]))
-    extra = [
-        Event(at=float(t), changes=(("motor.resistance", float(r)),))
-        for t, r in zip(edges[1:-1], seg_r[1:], strict=True)
-    ]
+    extra = []
+    for m, t in enumerate(edges[1:-1], start=1):
+        changes = [("motor.resistance", float(seg_r[m]))]
+        if seg_k is not None:
+            changes.append(("motor.torque_constant", float(seg_k[m])))
+        extra.append(Event(at=float(t), changes=tuple(changes)))
+    if seg_k is not None:
+        motor = dataclasses.replace(motor, torque_constant=float(seg_k[0]))
     events = tuple(sorted((*sc.events, *extra), key=lambda e: e.at))
     return dataclasses.replace(sc, motor=motor, events=events)
 
 
 def _temperatures(
-    sc: Scenario, result: SimulationResult, r_rows: np.ndarray
+    sc: Scenario, result: SimulationResult, r_rows: np.ndarray, a: np.ndarray, b: np.ndarray
 ) -> tuple[np.ndarray, float]:
-    """Winding temperature at each trace row [K], and at the start of the run [K]."""
+    """Node temperatures at each trace row [K] (column 0 the winding), and the winding's at the
+    start of the run [K]."""
     th = sc.thermal
     t = result.trace["time_s"]
     loss = r_rows * result.trace["current_A"] ** 2
@@ -147,41 +189,52 @@ def _temperatures(
     if total > 0.0:
         loss = loss * (exact / total)
     cycle = sc.simulation.cycle_time
+    n = a.shape[0]
     if cycle is not None:
-        from_zero = temperature_rise(t, loss, th.resistance, th.time_constant, 0.0)
-        theta0 = periodic_start_rise(from_zero[-1], float(t[-1]), cycle, th.time_constant)
-        rise = from_zero + theta0 * np.exp(-(t - t[0]) / th.time_constant)
-        start = th.ambient + theta0
+        from_zero = network_rise(t, loss, a, b, np.zeros(n))
+        x0 = periodic_start_rises(from_zero[-1], a, float(t[-1] - t[0]), cycle)
+        rises = from_zero + free_response(a, x0, t)
     else:
-        start = th.initial_temperature if th.initial_temperature is not None else th.ambient
-        rise = temperature_rise(t, loss, th.resistance, th.time_constant, start - th.ambient)
-    return th.ambient + rise, float(start)
+        x0 = _initial_rises(th, a)
+        rises = network_rise(t, loss, a, b, x0)
+    return th.ambient + rises, float(th.ambient + x0[0])
 
 
 def _finish(
     sc: Scenario,
     result: SimulationResult,
-    temp: np.ndarray,
+    temps: np.ndarray,
     r_rows: np.ndarray,
+    k_rows: np.ndarray | None,
     start_K: float,
     *,
     passes: int,
 ) -> SimulationResult:
     columns = dict(result.trace.columns)
-    columns["winding_temperature_K"] = temp
+    winding = temps[:, 0]
+    columns["winding_temperature_K"] = winding
     columns["winding_resistance_ohm"] = np.asarray(r_rows, dtype=float)
     summary = dict(result.summary)
-    peak = float(np.max(temp))
+    peak = float(np.max(winding))
     summary.update(
         {
             "initial_winding_temperature_K": start_K,
             "peak_winding_temperature_K": peak,
-            "peak_winding_temperature_time_s": float(result.trace["time_s"][int(np.argmax(temp))]),
-            "final_winding_temperature_K": float(temp[-1]),
+            "peak_winding_temperature_time_s": float(
+                result.trace["time_s"][int(np.argmax(winding))]
+            ),
+            "final_winding_temperature_K": float(winding[-1]),
             "winding_temperature_rise_K": peak - sc.thermal.ambient,
             "thermal_passes": passes,
         }
     )
+    if temps.shape[1] > 1:
+        columns["housing_temperature_K"] = temps[:, 1]
+        summary["peak_housing_temperature_K"] = float(np.max(temps[:, 1]))
+        summary["final_housing_temperature_K"] = float(temps[-1, 1])
+    if k_rows is not None:
+        columns["torque_constant_Nm_A"] = np.asarray(k_rows, dtype=float)
+        summary["final_torque_constant_Nm_A"] = float(k_rows[-1])
     own = {float(e.at) for e in sc.events}
     return dataclasses.replace(
         result,

@@ -146,6 +146,129 @@ def periodic_start_rise(
     return end_rise_from_zero_K * rest / -math.expm1(-cycle_time_s / tau)
 
 
+def network_matrices(thermal) -> tuple[np.ndarray, np.ndarray]:
+    """``A``, ``b`` of the thermal network ``theta' = A theta + b P`` (rises over ambient).
+
+    One node: ``A = [[-1/tau]]``, ``b = [R_th/tau]``. Two nodes (winding, housing), with
+    conductances ``G_wh = 1/R_wh``, ``G_ha = 1/R_ha`` and capacities ``C_w``, ``C_h``, the loss
+    into the winding node (the nodal heat balance of a lumped network, [1]_ sec. 3.1 and
+    5.1-5.3)::
+
+        C_w theta_w' = P - G_wh (theta_w - theta_h)
+        C_h theta_h' = G_wh (theta_w - theta_h) - G_ha theta_h
+
+    Parameters
+    ----------
+    thermal : Thermal
+        The scenario's ``[thermal]`` table (SI).
+    """
+    if not thermal.two_node:
+        tau = float(thermal.time_constant)
+        return np.array([[-1.0 / tau]]), np.array([float(thermal.resistance) / tau])
+    g_wh = 1.0 / thermal.winding_to_housing
+    g_ha = 1.0 / thermal.housing_to_ambient
+    c_w, c_h = thermal.winding_capacity, thermal.housing_capacity
+    a = np.array([[-g_wh / c_w, g_wh / c_w], [g_wh / c_h, -(g_wh + g_ha) / c_h]])
+    return a, np.array([1.0 / c_w, 0.0])
+
+
+def _hold_blocks(a: np.ndarray, b: np.ndarray, h: float):
+    """``Phi = e^{hA}``, ``G0``, ``G1`` with x(h) = Phi x0 + G0 u0 + G1 (u1 - u0) for an input
+    linear over the step (first-order hold), from one exponential of an augmented matrix
+    (Van Loan's block method; Higham, *Functions of Matrices*, SIAM 2008, sec. 10.7.4)."""
+    from scipy.linalg import expm
+
+    n = a.shape[0]
+    m = np.zeros((n + 2, n + 2))
+    m[:n, :n] = a * h
+    m[:n, n] = b * h
+    m[n, n + 1] = 1.0
+    e = expm(m)
+    return e[:n, :n], e[:n, n], e[:n, n + 1]
+
+
+def network_rise(
+    time_s: np.ndarray, power_W: np.ndarray, a: np.ndarray, b: np.ndarray, x0: np.ndarray
+) -> np.ndarray:
+    """Node rises over the ambient under a sampled loss (exact for a loss linear in between).
+
+    Parameters
+    ----------
+    time_s : array_like
+        Sample times, non-decreasing [s].
+    power_W : array_like
+        Loss at those times [W].
+    a, b : numpy.ndarray
+        The network (:func:`network_matrices`).
+    x0 : array_like
+        Rises at ``time_s[0]`` [K].
+
+    Returns
+    -------
+    numpy.ndarray
+        Shape ``(len(time_s), nodes)`` [K].
+    """
+    t = np.asarray(time_s, dtype=float)
+    u = np.asarray(power_W, dtype=float)
+    out = np.empty((t.size, a.shape[0]))
+    if t.size == 0:
+        return out
+    x = np.asarray(x0, dtype=float).copy()
+    out[0] = x
+    cache: dict[float, tuple] = {}
+    for k, h in enumerate(np.diff(t)):
+        blocks = cache.get(float(h))
+        if blocks is None:
+            blocks = cache[float(h)] = _hold_blocks(a, b, float(h))
+        phi, g0, g1 = blocks
+        x = phi @ x + g0 * u[k] + g1 * (u[k + 1] - u[k])
+        out[k + 1] = x
+    return out
+
+
+def periodic_start_rises(
+    end_rise_from_zero_K: np.ndarray, a: np.ndarray, duration_s: float, cycle_time_s: float
+) -> np.ndarray:
+    """Node rises at the start of each cycle once a repeated duty cycle has settled [K].
+
+    The network evolves freely for the rest ``T_c - D`` of each cycle, so the settled start
+    solves ``x0 = e^{A (T_c - D)} (e^{A D} x0 + x_z(D))``:
+    ``x0 = (I - e^{A T_c})^{-1} e^{A (T_c - D)} x_z(D)`` (superposition; the one-node case is
+    :func:`periodic_start_rise`).
+    """
+    from scipy.linalg import expm
+
+    n = a.shape[0]
+    rest = expm(a * (cycle_time_s - duration_s))
+    whole = expm(a * cycle_time_s)
+    return np.linalg.solve(np.eye(n) - whole, rest @ np.asarray(end_rise_from_zero_K))
+
+
+def free_response(a: np.ndarray, x0: np.ndarray, time_s: np.ndarray) -> np.ndarray:
+    """``e^{A (t - t0)} x0`` at each time, shape ``(len(time_s), nodes)`` [K].
+
+    By the eigen-decomposition of ``A`` (a passive RC network has real, distinct, negative
+    eigenvalues).
+    """
+    t = np.asarray(time_s, dtype=float)
+    w, v = np.linalg.eig(a)
+    c = np.linalg.solve(v, np.asarray(x0, dtype=float))
+    modes = c * np.exp(np.outer(t - t[0], w))
+    return np.real(modes @ v.T)
+
+
+def torque_constant_at(
+    torque_constant: float, magnet_K: float | np.ndarray, reference_K: float, coefficient: float
+) -> float | np.ndarray:
+    """Torque constant at a magnet temperature: ``K_ref (1 + c (T - T_ref))`` [N*m/A].
+
+    The air-gap flux of a permanent-magnet machine follows the magnets' remanence, whose
+    reversible change is linear in temperature with the material's coefficient ``c`` [1/K]
+    (magnet makers' data; values in :data:`dcsim.scenario.schema.MAGNET_COEFFICIENTS_PER_K`).
+    """
+    return torque_constant * (1.0 + coefficient * (np.asarray(magnet_K, dtype=float) - reference_K))
+
+
 def celsius(temperature_K: float) -> float:
     """Temperature in degC for display."""
     return temperature_K - ZERO_CELSIUS_K

@@ -36,6 +36,7 @@ else:  # pragma: no cover - Python 3.10
     import tomli as tomllib
 
 from dcsim.errors import ScenarioError
+from dcsim.scenario import datasheet
 from dcsim.scenario.schema import (
     CONTROLLED,
     CONTROLLED_UNITS,
@@ -105,7 +106,6 @@ _PLANNED_KEYS: dict[str, str] = {
     "motor.field_resistance": "wound-field machines",
     "motor.field_inductance": "wound-field machines",
     "motor.mutual_inductance": "wound-field machines",
-    "motor.speed_constant": "catalogue motor data",
 }
 """Names the contract announces that this version does not read yet (for clearer messages)."""
 
@@ -261,7 +261,33 @@ def apply_changes(scenario: Scenario, changes: Mapping[str, Any]) -> Scenario:
     if scenario.battery is not None and "supply.voltage" not in changed:
         read.values.pop("supply.voltage", None)  # follows the battery
         read.given.discard("supply.voltage")
+    _release_derived_motor_keys(scenario, changed, read)
     return _assemble(read, source, result_source=scenario.source)
+
+
+def _release_derived_motor_keys(
+    scenario: Scenario, changed: Mapping[str, Any], read: _Read
+) -> None:
+    """Decide whether the model keys derived from catalogue data are derived again.
+
+    - A change of a catalogue key, or of nothing in the motor's model: the keys that came from
+      the catalogue are derived again from the (new) figures.
+    - A change of a model key (``resistance``, ``torque_constant``, ``inertia``, either
+      friction) and no catalogue key: the changed key takes its new value and the derived
+      ones keep theirs, now as given values (changing R does not move the inertia that came
+      from the mechanical time constant); the checks then show where the catalogue figures
+      no longer agree.
+    """
+    derived = [f"motor.{name}" for name, _ in getattr(scenario.motor, "derived", ())]
+    if not derived:
+        return
+    catalogue = {f"motor.{k}" for k in datasheet.CATALOGUE_KEYS}
+    model = {f"motor.{k}" for k in datasheet.MODEL_KEYS} - {"motor.inductance"}
+    if any(n in catalogue for n in changed) or not any(n in model for n in changed):
+        for name in derived:
+            if name not in changed:
+                read.values.pop(name, None)
+                read.given.discard(name)
 
 
 def _recheck_event(index: int, event: Event, source: str) -> _ReadEvent:
@@ -853,7 +879,46 @@ def _rule_design_checks(state: dict[str, Any], given: set[str], show: _Show) -> 
             f"expected a supply corner above checks.supply_min ({show('checks.supply_min')}), "
             f"found {show('checks.supply_max')}",
         )
-    if "thermal.resistance" in state:
+    if "thermal.coupled" in state:
+        one = ("thermal.resistance", "thermal.time_constant")
+        two = (
+            "thermal.winding_to_housing",
+            "thermal.housing_to_ambient",
+            "thermal.winding_capacity",
+            "thermal.housing_capacity",
+        )
+        has_one = [k for k in one if state[k] is not None]
+        has_two = [k for k in two if state[k] is not None]
+        if has_one and has_two:
+            return (
+                has_two[0],
+                "expected either the one-node model (thermal.resistance, thermal.time_constant) "
+                f"or the two-node model ({', '.join(two)}), found both",
+            )
+        missing = [k for k in (two if has_two else one) if state[k] is None]
+        if missing:
+            return (
+                missing[0],
+                f"missing key: expected {missing[0].split('.')[1]} in [thermal] (the "
+                f"{'two' if has_two else 'one'}-node model needs "
+                f"{', '.join(k.split('.')[1] for k in (two if has_two else one))}), found none",
+            )
+        magnets = state["thermal.magnet_material"] is not None
+        if magnets and state["thermal.magnet_coefficient"] is not None:
+            return (
+                "thermal.magnet_coefficient",
+                "expected thermal.magnet_material or thermal.magnet_coefficient, found both",
+            )
+        magnets = magnets or state["thermal.magnet_coefficient"] is not None
+        if magnets and not has_two:
+            return (
+                "thermal.magnet_material"
+                if state["thermal.magnet_material"] is not None
+                else "thermal.magnet_coefficient",
+                "expected the two-node model (winding_to_housing, housing_to_ambient, "
+                "winding_capacity, housing_capacity) for the magnets' temperature (they sit at "
+                "the housing node's), found the one-node model",
+            )
         t0 = state.get("thermal.initial_temperature")
         for name in ("thermal.ambient", "thermal.reference_temperature"):
             if state[name] <= 0.0:
@@ -885,6 +950,7 @@ def _assemble(read: _Read, source: str, *, result_source: str) -> Scenario:
             raise _missing_table(table, source)
     if "battery" in read.tables:
         _battery_sets_supply_voltage(values, read, source)
+    motor = _derive_motor(values, read.given, source)
     for table, specs in KEYS.items():
         if table in OPTIONAL_TABLES and table not in read.tables:
             continue
@@ -925,6 +991,18 @@ def _assemble(read: _Read, source: str, *, result_source: str) -> Scenario:
                 key=f"{_EVENTS}[{event.index}].at",
             )
         for name, _ in event.changes:
+            magnets = "thermal" in present and (
+                values["thermal.magnet_material"] is not None
+                or values["thermal.magnet_coefficient"] is not None
+            )
+            if name == "motor.torque_constant" and magnets and values["thermal.coupled"]:
+                raise ScenarioError(
+                    "expected no event on motor.torque_constant when [thermal] has magnets and "
+                    "coupled = true (the magnets' temperature sets it), found one at "
+                    f"{event.at_shown}",
+                    source=source,
+                    key=f"{_EVENTS}[{event.index}].set.motor.torque_constant",
+                )
             if name == "motor.resistance" and "thermal" in present and values["thermal.coupled"]:
                 raise ScenarioError(
                     "expected no event on motor.resistance when [thermal] coupled = true (the "
@@ -950,8 +1028,12 @@ def _assemble(read: _Read, source: str, *, result_source: str) -> Scenario:
             tables[table] = None
             continue
         tables[table] = cls(**{key: values[f"{table}.{key}"] for key in KEYS[table]})
-    _resolve_files(tables, source)
     import dataclasses
+
+    tables["motor"] = dataclasses.replace(
+        tables["motor"], derived=motor.derived, checks=motor.checks
+    )
+    _resolve_files(tables, source)
 
     for table in sorted((t for t in tables if "." in t), key=lambda t: -t.count(".")):
         parent, _, field_name = table.rpartition(".")
@@ -961,6 +1043,22 @@ def _assemble(read: _Read, source: str, *, result_source: str) -> Scenario:
         events=tuple(Event(at=e.at, changes=e.changes) for e in ordered),
         source=result_source,
     )
+
+
+def _derive_motor(values: dict[str, Any], given: set[str], source: str) -> datasheet.Derivation:
+    """Fill the model keys of ``[motor]`` that catalogue figures give (in place).
+
+    A model key counts as given when the file (or ``with_changes``) wrote it with a value;
+    the friction keys, which default to 0, only when written.
+    """
+    catalogue = {k: values.get(f"motor.{k}") for k in datasheet.CATALOGUE_KEYS}
+    model = {
+        k: values.get(f"motor.{k}") if f"motor.{k}" in given else None for k in datasheet.MODEL_KEYS
+    }
+    result = datasheet.derive_motor(catalogue, model, source=source)
+    for name, value in result.values.items():
+        values[f"motor.{name}"] = value
+    return result
 
 
 def _battery_sets_supply_voltage(values: dict[str, Any], read: _Read, source: str) -> None:

@@ -14,6 +14,8 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from typing import Any
 
+from dcsim.scenario.datasheet import CatalogueCheck
+
 # --------------------------------------------------------------------------------------------
 # Key table
 # --------------------------------------------------------------------------------------------
@@ -98,6 +100,17 @@ INSULATION_CLASS_LIMITS_K = {
 """Thermal class limits of IEC 60085 (105, 120, 130, 155, 180, 200, 220 degC) [K]: the
 highest temperature the insulation system is rated for (IEC 60085, thermal classes)."""
 
+MAGNET_COEFFICIENTS_PER_K = {
+    "ferrite": -0.0020,
+    "ndfeb": -0.0012,
+    "smco": -0.00035,
+    "alnico": -0.0002,
+}
+"""Reversible temperature coefficients of the remanence of common magnet materials [1/K]
+(hard ferrite about -0.2 %/K, sintered NdFeB -0.12 %/K, Sm2Co17 -0.035 %/K, AlNiCo
+-0.02 %/K): typical values from memory (magnet makers' data sheets give each grade's own);
+the air-gap flux, and so the torque constant, follows the remanence."""
+
 CONTROLLED = "<controlled>"
 """Placeholder unit of reference values: A, rad/s or rad, as the control mode says."""
 
@@ -176,12 +189,23 @@ KEYS: dict[str, dict[str, KeySpec]] = {
             example="permanent_magnet",
             choices=("permanent_magnet",),
         ),
-        "resistance": _q("ohm", "a resistance", "1.2 ohm", constraint="positive", changeable=True),
+        # resistance, torque_constant and inertia: required unless the catalogue keys below
+        # give them (dcsim.scenario.datasheet derives them; default None = "not written").
+        "resistance": _q(
+            "ohm", "a resistance", "1.2 ohm", default=None, constraint="positive", changeable=True
+        ),
         "inductance": _q("H", "an inductance", "2 mH", constraint="positive"),
         "torque_constant": _q(
-            "N*m/A", "a torque constant", "0.05 N*m/A", constraint="positive", changeable=True
+            "N*m/A",
+            "a torque constant",
+            "0.05 N*m/A",
+            default=None,
+            constraint="positive",
+            changeable=True,
         ),
-        "inertia": _q("kg*m^2", "a moment of inertia", "1e-4 kg*m^2", constraint="positive"),
+        "inertia": _q(
+            "kg*m^2", "a moment of inertia", "1e-4 kg*m^2", default=None, constraint="positive"
+        ),
         "viscous_friction": _q(
             "N*m*s/rad",
             "a viscous friction coefficient",
@@ -190,6 +214,18 @@ KEYS: dict[str, dict[str, KeySpec]] = {
             changeable=True,
         ),
         "coulomb_friction": _q("N*m", "a torque", "0.01 N*m", default=0.0, changeable=True),
+        # catalogue figures (datasheet import): optional, at the nominal voltage
+        "nominal_voltage": _q("V", "a voltage", "24 V", default=None, constraint="positive"),
+        "no_load_speed": _q("rad/s", "a speed", "5200 rpm", default=None, constraint="positive"),
+        "no_load_current": _q("A", "a current", "45 mA", default=None, constraint="positive"),
+        "stall_torque": _q("N*m", "a torque", "120 mN*m", default=None, constraint="positive"),
+        "stall_current": _q("A", "a current", "4.2 A", default=None, constraint="positive"),
+        "speed_constant": _q(
+            "rad/(V*s)", "a speed constant", "500 rpm/V", default=None, constraint="positive"
+        ),
+        "mechanical_time_constant": _q(
+            "s", "a time constant", "12 ms", default=None, constraint="positive"
+        ),
     },
     "load": {
         "inertia": _q("kg*m^2", "a moment of inertia", "0 kg*m^2", default=0.0, changeable=True),
@@ -386,8 +422,33 @@ KEYS: dict[str, dict[str, KeySpec]] = {
         "seed": _q("", "a whole number", "1", default=0.0),
     },
     "thermal": {
-        "resistance": _q("K/W", "a thermal resistance", "1.5 K/W", constraint="positive"),
-        "time_constant": _q("s", "a time", "600 s", constraint="positive"),
+        "resistance": _q(
+            "K/W", "a thermal resistance", "1.5 K/W", default=None, constraint="positive"
+        ),
+        "time_constant": _q("s", "a time", "600 s", default=None, constraint="positive"),
+        "winding_to_housing": _q(
+            "K/W", "a thermal resistance", "0.8 K/W", default=None, constraint="positive"
+        ),
+        "housing_to_ambient": _q(
+            "K/W", "a thermal resistance", "1.6 K/W", default=None, constraint="positive"
+        ),
+        "winding_capacity": _q(
+            "J/K", "a heat capacity", "120 J/K", default=None, constraint="positive"
+        ),
+        "housing_capacity": _q(
+            "J/K", "a heat capacity", "900 J/K", default=None, constraint="positive"
+        ),
+        "magnet_material": KeySpec(
+            None,
+            kind="choice",
+            default=None,
+            noun="a magnet material",
+            example="ferrite",
+            choices=tuple(MAGNET_COEFFICIENTS_PER_K),
+        ),
+        "magnet_coefficient": _q(
+            "1/K", "a temperature coefficient", "-0.002 1/K", default=None, constraint="any"
+        ),
         "ambient": _q("K", "a temperature", "40 degC", default=313.15, constraint="positive"),
         "initial_temperature": _q(
             "K", "a temperature", "40 degC", default=None, constraint="positive"
@@ -452,6 +513,7 @@ OPTIONAL_TABLES = (
 )
 """Tables that describe a part the drive may not have: absent means no such part."""
 DERIVED_FIELDS = {
+    "motor": ("derived", "checks"),
     "fuse": ("table_points",),
     "supply_profile": ("times_s", "voltages_V", "notes"),
     "control": ("current", "speed", "position", "reference"),
@@ -501,6 +563,11 @@ class Simulation:
 class Motor:
     """Permanent-magnet DC machine, armature quantities.
 
+    The model keys (``resistance`` ... ``coulomb_friction``) are what the simulation reads.
+    A file may give catalogue figures instead of some of them (``nominal_voltage`` ...
+    ``mechanical_time_constant``); the loader derives the missing model keys from them and
+    compares every over-determined figure with the model (:mod:`dcsim.scenario.datasheet`).
+
     Attributes
     ----------
     resistance : float
@@ -517,6 +584,23 @@ class Motor:
         Coulomb (dry) friction torque, also the static breakaway level [N*m].
     kind : str
         Machine kind; only ``"permanent_magnet"`` so far.
+    nominal_voltage : float or None
+        Catalogue: the voltage the other figures are given at [V].
+    no_load_speed, no_load_current : float or None
+        Catalogue: steady speed [rad/s] (files may write rpm) and current [A] without load.
+    stall_torque, stall_current : float or None
+        Catalogue: torque [N*m] and current [A] with the rotor held, at the nominal voltage.
+    speed_constant : float or None
+        Catalogue: no-load speed per volt of back-EMF [rad/(V*s)] (files write rpm/V);
+        ``torque_constant = 1 / speed_constant`` in SI.
+    mechanical_time_constant : float or None
+        Catalogue: ``J R / K^2`` [s].
+    derived : tuple of (str, str)
+        ``(model key, formula)`` of each model key derived from catalogue figures (filled by
+        the loader; the scenario writer leaves these keys out, the loader derives them again).
+    checks : tuple of CatalogueCheck
+        The catalogue figures against the model (filled by the loader); those off by more
+        than 5 % are the scenario's warnings (:attr:`catalogue_warnings`).
     """
 
     resistance: float
@@ -526,6 +610,20 @@ class Motor:
     viscous_friction: float = 0.0
     coulomb_friction: float = 0.0
     kind: str = "permanent_magnet"
+    nominal_voltage: float | None = None
+    no_load_speed: float | None = None
+    no_load_current: float | None = None
+    stall_torque: float | None = None
+    stall_current: float | None = None
+    speed_constant: float | None = None
+    mechanical_time_constant: float | None = None
+    derived: tuple[tuple[str, str], ...] = ()
+    checks: tuple[CatalogueCheck, ...] = ()
+
+    @property
+    def catalogue_warnings(self) -> tuple[str, ...]:
+        """One message per catalogue figure more than 5 % off the model (empty: none)."""
+        return tuple(c.message() for c in self.checks if not c.ok)
 
 
 @dataclass(frozen=True)
@@ -1025,7 +1123,8 @@ class Control:
 
 @dataclass(frozen=True)
 class Thermal:
-    """First-order thermal model of the armature winding (winding -> ambient).
+    """Thermal model of the machine: one node (winding -> ambient) or two (winding -> housing
+    -> ambient).
 
     ``C dT/dt = P_cu - (T - T_amb) / R_th`` with ``tau = R_th C``: a lumped body behind one
     thermal resistance (Incropera et al., *Fundamentals of Heat and Mass Transfer*, 6th ed.,
@@ -1034,10 +1133,22 @@ class Thermal:
 
     Attributes
     ----------
-    resistance : float
-        Thermal resistance winding to ambient [K/W].
-    time_constant : float
-        Thermal time constant ``R_th C`` [s].
+    resistance : float or None
+        One-node model: thermal resistance winding to ambient [K/W].
+    time_constant : float or None
+        One-node model: thermal time constant ``R_th C`` [s].
+    winding_to_housing, housing_to_ambient : float or None
+        Two-node model: thermal resistances [K/W] of the network winding -> housing ->
+        ambient (give these four instead of ``resistance`` and ``time_constant``).
+    winding_capacity, housing_capacity : float or None
+        Two-node model: heat capacities [J/K]. The copper loss heats the winding node.
+    magnet_material : str or None
+        ``"ferrite"``, ``"ndfeb"``, ``"smco"`` or ``"alnico"``: the torque constant falls with
+        the magnets' temperature (the housing node's; two-node model only) by the material's
+        coefficient (:data:`MAGNET_COEFFICIENTS_PER_K`).
+    magnet_coefficient : float or None
+        The coefficient itself [1/K] (instead of ``magnet_material``): ``K(T) = K_ref (1 +
+        c (T - reference_temperature))``.
     ambient : float
         Ambient temperature [K] (files may write ``"40 degC"``).
     initial_temperature : float or None
@@ -1054,14 +1165,46 @@ class Thermal:
         The armature resistance of the electrical model follows the winding temperature.
     """
 
-    resistance: float
-    time_constant: float
+    resistance: float | None = None
+    time_constant: float | None = None
+    winding_to_housing: float | None = None
+    housing_to_ambient: float | None = None
+    winding_capacity: float | None = None
+    housing_capacity: float | None = None
+    magnet_material: str | None = None
+    magnet_coefficient: float | None = None
     ambient: float = 313.15
     initial_temperature: float | None = None
     reference_temperature: float = 293.15
     insulation_class: str | None = None
     hot_spot_allowance: float = 10.0
     coupled: bool = True
+
+    @property
+    def two_node(self) -> bool:
+        """True for the winding -> housing -> ambient network."""
+        return self.winding_to_housing is not None
+
+    @property
+    def magnet_coefficient_per_K(self) -> float:
+        """Temperature coefficient of the torque constant [1/K] (0: none)."""
+        if self.magnet_coefficient is not None:
+            return self.magnet_coefficient
+        if self.magnet_material is not None:
+            return MAGNET_COEFFICIENTS_PER_K[self.magnet_material]
+        return 0.0
+
+    @property
+    def slowest_time_constant_s(self) -> float:
+        """The longest time constant of the network [s]."""
+        if not self.two_node:
+            return float(self.time_constant)
+        import numpy as np
+
+        from dcsim.plant.thermal import network_matrices
+
+        a, _ = network_matrices(self)
+        return float(1.0 / np.min(np.abs(np.linalg.eigvals(a))))
 
 
 @dataclass(frozen=True)

@@ -7,7 +7,9 @@ shortest decimal that gives the same double (``repr``); each written string is r
 :func:`~dcsim.units.to_si` and, should that not give the same double bit for bit, the plain SI
 number is written instead (which the loader takes as SI). Keys equal to their default are left
 out, required keys never; optional tables that are absent are left out; the fields the loader
-derives (:data:`DERIVED_FIELDS`) are not written.
+derives (:data:`DERIVED_FIELDS`) are not written, nor the motor's model keys that came from its
+catalogue figures (``Motor.derived``): the figures are written and the loader derives the keys
+from them again, to the same doubles.
 
 :func:`write_scenario` puts the text in a file atomically and refuses to replace an existing
 file unless asked to.
@@ -236,9 +238,12 @@ class _Writer:
         if part is None:
             return ""
         lines = []
+        derived = {k for k, _ in getattr(part, "derived", ())} if table == "motor" else set()
         for key, spec in KEYS[table].items():
             name = f"{table}.{key}"
             value = getattr(part, key)
+            if key in derived:
+                continue  # derived from the catalogue keys written beside it, again on loading
             if spec.default is REQUIRED:
                 if value is None:
                     raise ScenarioError(
