@@ -1,10 +1,10 @@
-"""The ``dcsim`` command: ``run``, ``validate``, ``tune``, ``check``, ``report``, ``motor``,
-``fit`` and ``demo``.
+"""The ``dcsim`` command: ``run``, ``validate``, ``tune``, ``check``, ``report``, ``sweep``,
+``motor``, ``fit`` and ``demo``.
 
-Exit codes: 0 success; 3 a design check fails (``check``, ``report``); 2 bad input (scenario
-file, command line), with one line on stderr naming the file, the key, what was expected and
-what was found; 1 any other failure, with one line; 130 interrupted. ``--debug`` shows the
-full traceback instead.
+Exit codes: 0 success; 3 a design check fails (``check``, ``report``) or a sweep finished with
+runs that failed (an error or a criterion); 2 bad input (scenario file, command line), with one
+line on stderr naming the file, the key, what was expected and what was found; 1 any other
+failure, with one line; 130 interrupted. ``--debug`` shows the full traceback instead.
 
 The engine, numpy and matplotlib are imported inside the commands that need them, so that
 ``dcsim --help`` and ``dcsim validate`` start quickly.
@@ -30,6 +30,7 @@ EXIT_OK = 0
 EXIT_FAILURE = 1
 EXIT_BAD_INPUT = 2
 EXIT_CHECK_FAILED = 3
+EXIT_RUNS_FAILED = 3
 EXIT_INTERRUPTED = 130
 
 DEMO_SCENARIO = Path(__file__).with_name("data") / "demo.toml"
@@ -466,6 +467,60 @@ def _cmd_fit(args: argparse.Namespace) -> int:
     return EXIT_OK
 
 
+def _cmd_sweep(args: argparse.Namespace) -> int:
+    given = args.sweep
+    if not given.strip():
+        raise _BadInput("expected a sweep file name, found an empty string")
+    path = Path(given)
+    if not path.exists():
+        raise _BadInput(f"{given}: file not found")
+    if path.is_dir():
+        raise _BadInput(f"{given}: expected a sweep file, found a directory")
+    out_dir = Path(args.out) if args.out else DEFAULT_RUN_ROOT / path.stem
+    _check_out_dir(out_dir)
+    if args.workers is not None and args.scheduler:
+        raise _BadInput("--workers, --scheduler: expected one of them, found both")
+    if args.workers is not None and args.workers < 1:
+        raise _BadInput(f"--workers: expected 1 or more, found {args.workers}")
+
+    from dcsim.sweep.execute import run_sweep
+    from dcsim.sweep.report import format_report
+
+    try:
+        outcome = run_sweep(
+            given,
+            out_dir,
+            workers=args.workers,
+            scheduler=args.scheduler,
+            resume=args.resume,
+            confirm=args.yes,
+        )
+    except KeyboardInterrupt:
+        _write(
+            sys.stderr,
+            f"{_PROG}: interrupted; the finished runs are in "
+            f"{_shown(out_dir / 'results.csv')}; --resume runs the rest\n",
+        )
+        return EXIT_INTERRUPTED
+    lines = [format_report(outcome.report)] if outcome.report is not None else []
+    if outcome.done_before:
+        lines.append(
+            f"({outcome.done_before} runs were in {_shown(out_dir)} already; "
+            f"{outcome.executed.size} more were run)"
+        )
+    top = [f for f in outcome.files if f.parent == out_dir]
+    plots = [f for f in top if f.suffix == ".png"]
+    lines += ["", f"files written to {_shown(out_dir)}:"]
+    lines += [f"  {f.name}" for f in top if f.suffix != ".png"]
+    if plots:
+        lines.append(f"  {len(plots)} plots: hist_<metric>.png, scatter_<metric>.png")
+    traces = sorted({f.parent.name for f in outcome.files if f.parent.parent.name == "traces"})
+    if traces:
+        lines.append(f"  traces/{{{', '.join(traces)}}}/ (trace.csv, summary.json)")
+    _write(sys.stdout, "\n".join(lines) + "\n")
+    return EXIT_OK if outcome.failed == 0 and outcome.passed == outcome.runs else EXIT_RUNS_FAILED
+
+
 # --------------------------------------------------------------------------------------------
 # Parser and entry point
 # --------------------------------------------------------------------------------------------
@@ -494,7 +549,8 @@ def build_parser() -> argparse.ArgumentParser:
         prog=_PROG,
         description="Time-domain simulation of brushed / permanent-magnet DC motor drives.",
         epilog=(
-            "Exit codes: 0 success, 3 a design check fails, 2 bad input, 1 any other failure, "
+            "Exit codes: 0 success, 3 a design check fails or sweep runs failed, 2 bad input, "
+            "1 any other failure, "
             "130 interrupted. " + _CAUTION_EPILOG
         ),
     )
@@ -647,6 +703,31 @@ def build_parser() -> argparse.ArgumentParser:
     fit.add_argument("--force", action="store_true", help="replace existing files in DIR")
     fit.set_defaults(handler=_cmd_fit)
 
+    sweep = commands.add_parser(
+        "sweep",
+        parents=[common],
+        help="run a grid, Monte Carlo tolerances and worst-case corners of a scenario",
+        description="Run every run of a sweep file (grid x nominal, corners and Monte Carlo "
+        "samples of the tolerances) in parallel, and write results.csv / results.parquet (a row "
+        "per run), report.json (worst cases, statistics) and PNG histograms and scatter plots. "
+        "Exit 3 when any run fails (an error, or a criterion of the sweep file).",
+    )
+    sweep.add_argument("sweep", metavar="SWEEP", help="sweep file (TOML)")
+    sweep.add_argument(
+        "--out", metavar="DIR", help="output directory (default: ./dcsim-out/<sweep file stem>)"
+    )
+    sweep.add_argument(
+        "--workers", type=int, metavar="N", help="local worker processes (default: all CPUs)"
+    )
+    sweep.add_argument(
+        "--scheduler", metavar="ADDRESS", help="send the runs to a Dask scheduler (tcp://host:port)"
+    )
+    sweep.add_argument(
+        "--resume", action="store_true", help="continue the sweep in DIR: run only the rest"
+    )
+    sweep.add_argument("--yes", action="store_true", help="confirm a sweep of more than 10000 runs")
+    sweep.set_defaults(handler=_cmd_sweep)
+
     demo = commands.add_parser(
         "demo",
         parents=[common],
@@ -684,8 +765,8 @@ def main(argv: Sequence[str] | None = None) -> int:
     handler: Callable[[argparse.Namespace], int] | None = getattr(args, "handler", None)
     if handler is None:
         _error_line(
-            "no command given; choose one of run, validate, check, report, tune, motor, fit, "
-            "demo (see 'dcsim --help')"
+            "no command given; choose one of run, validate, check, report, tune, sweep, motor, "
+            "fit, demo (see 'dcsim --help')"
         )
         return EXIT_BAD_INPUT
 
