@@ -73,7 +73,16 @@ from dcsim.scenario.schema import (
 )
 from dcsim.units import UnitError, describe_value, to_si
 
-__all__ = ["apply_changes", "load_scenario", "load_scenario_text"]
+__all__ = [
+    "apply_changes",
+    "convert_value",
+    "key_spec",
+    "load_scenario",
+    "load_scenario_mapping",
+    "load_scenario_text",
+    "parse_toml",
+    "unknown_key_error",
+]
 
 _TABLE_TYPES: dict[str, type] = {
     "simulation": Simulation,
@@ -331,6 +340,47 @@ class _Read:
     shown: dict[str, str] = field(default_factory=dict)
     given: set[str] = field(default_factory=set)
     events: list[_ReadEvent] = field(default_factory=list)
+
+
+def load_scenario_mapping(document: dict[str, Any], source: str) -> Scenario:
+    """Validate a scenario given as an already parsed TOML document (e.g. a table inline in
+    another file).
+
+    Parameters
+    ----------
+    document : dict
+        The tables of a scenario file, as ``tomllib`` returns them.
+    source : str
+        Where it came from, for messages (also the result's ``source``).
+    """
+    return _assemble(_read_document(document, source), source, result_source=source)
+
+
+def parse_toml(text: str, source: str) -> dict[str, Any]:
+    """``tomllib.loads`` with a decoding error turned into one :class:`ScenarioError` line
+    that names ``source`` and the line."""
+    return _parse_toml(text, source)
+
+
+def convert_value(
+    name: str, spec: KeySpec, value: Any, *, key: str, source: str, mode: Any = "voltage"
+) -> Any:
+    """The value of key ``name`` checked against its :class:`KeySpec` and converted to SI
+    (``key`` is how messages name it; ``mode`` the control mode for controlled-quantity
+    units)."""
+    return _convert(name, spec, value, key=key, source=source, mode=mode)
+
+
+def key_spec(name: str) -> KeySpec | None:
+    """The :class:`KeySpec` of a dotted key (``"motor.resistance"``), or ``None``."""
+    return _spec(name)
+
+
+def unknown_key_error(
+    name: str, *, source: str, key: str, candidates: list[str] | None = None
+) -> ScenarioError:
+    """The message for an unknown dotted key, naming the closest valid one."""
+    return _unknown_key(name, source=source, key=key, candidates=candidates)
 
 
 def _parse_toml(text: str, source: str) -> dict[str, Any]:

@@ -36,7 +36,7 @@ from typing import Any
 
 import numpy as np
 
-from dcsim.scenario.load import _spec
+from dcsim.scenario.load import key_spec
 from dcsim.sweep.spec import SweepSpec
 
 __all__ = ["KIND_CORNER", "KIND_NOMINAL", "KIND_SAMPLE", "Plan", "RunSpec"]
@@ -98,7 +98,7 @@ class Plan:
         self.spec = spec
         self.keys = spec.varied_keys
         kinds = {"quantity": "float", "bool": "bool", "choice": "str"}
-        self.key_kinds = tuple(kinds[_spec(k).kind] for k in self.keys)
+        self.key_kinds = tuple(kinds[key_spec(k).kind] for k in self.keys)
         self._sizes = tuple(len(axis.levels) for axis in spec.grid)
         self.points = math.prod(self._sizes)
         n_tol = len(spec.tolerances)

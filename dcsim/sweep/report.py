@@ -37,7 +37,7 @@ from typing import Any
 import numpy as np
 
 from dcsim.results.summary import CAUTION
-from dcsim.scenario.load import _spec
+from dcsim.scenario.load import key_spec
 from dcsim.sweep.plan import KIND_CORNER, KIND_NOMINAL, KIND_SAMPLE, Plan
 from dcsim.sweep.spec import SweepSpec, metric_unit
 from dcsim.sweep.store import ResultsTable
@@ -445,7 +445,7 @@ def plot_scatter(table: ResultsTable, plan: Plan, metric: str):
 
 
 def _key_unit(key: str) -> str:
-    spec = _spec(key)
+    spec = key_spec(key)
     return spec.unit if spec is not None and spec.unit and not spec.unit.startswith("<") else ""
 
 

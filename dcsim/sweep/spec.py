@@ -42,13 +42,12 @@ from typing import Any
 
 from dcsim.errors import ScenarioError
 from dcsim.scenario.load import (
-    _assemble,
-    _convert,
-    _parse_toml,
-    _read_document,
-    _spec,
-    _unknown_key,
+    convert_value,
+    key_spec,
     load_scenario,
+    load_scenario_mapping,
+    parse_toml,
+    unknown_key_error,
 )
 from dcsim.scenario.schema import KeySpec, Scenario
 from dcsim.units import UnitError, describe_value, to_si
@@ -312,7 +311,7 @@ def load_sweep_text(
         Anything not acceptable, naming the source, the key, the expectation and the finding.
     """
     source = str(source)
-    doc = _parse_toml(text, source)
+    doc = parse_toml(text, source)
     for name in doc:
         if name not in _TOP_KEYS:
             close = difflib.get_close_matches(name, _TOP_KEYS, n=1)
@@ -457,7 +456,7 @@ def _read_base(doc: dict[str, Any], source: str, base_dir: Path) -> Scenario:
         return load_scenario(path)
     if isinstance(body, dict):
         where = f"{source} [base]"
-        return _assemble(_read_document(body, where), where, result_source=where)
+        return load_scenario_mapping(body, where)
     raise ScenarioError(
         "expected a scenario file name (a string) or a [base] table, found "
         f"{describe_value(body, with_kind=True)}",
@@ -492,9 +491,9 @@ def _scalar_spec(name: str, source: str, key: str) -> KeySpec:
             source=source,
             key=key,
         )
-    spec = _spec(name)
+    spec = key_spec(name)
     if spec is None:
-        raise _unknown_key(name, source=source, key=key)
+        raise unknown_key_error(name, source=source, key=key)
     if spec.kind not in ("quantity", "bool", "choice"):
         raise ScenarioError(
             f"expected a key that takes one number, switch or choice, found {name}, which "
@@ -564,7 +563,7 @@ def _grid_values(
                 key=key,
             )
         values = [
-            _convert(name, spec, v, key=f"{key}[{i}]", source=source, mode=mode)
+            convert_value(name, spec, v, key=f"{key}[{i}]", source=source, mode=mode)
             for i, v in enumerate(item)
         ]
     else:
@@ -607,8 +606,8 @@ def _grid_range(
                 source=source,
                 key=key,
             )
-    lo = _convert(name, spec, item["from"], key=f"{key}.from", source=source, mode=mode)
-    hi = _convert(name, spec, item["to"], key=f"{key}.to", source=source, mode=mode)
+    lo = convert_value(name, spec, item["from"], key=f"{key}.from", source=source, mode=mode)
+    hi = convert_value(name, spec, item["to"], key=f"{key}.to", source=source, mode=mode)
     count = item["count"]
     if isinstance(count, bool) or not isinstance(count, int) or not 2 <= count <= 100_000:
         raise ScenarioError(
@@ -727,7 +726,7 @@ def _tolerance_amount(
     else:
         # The key's own conversion (dimension, finiteness), then our own sign check.
         loose = dataclasses.replace(spec, constraint="any", noun=f"{what} in % or as {spec.noun}")
-        value = _convert(name, loose, amount, key=key, source=source, mode=mode)
+        value = convert_value(name, loose, amount, key=key, source=source, mode=mode)
     if not value > 0:
         raise ScenarioError(
             f"expected {what} above 0 (e.g. '5 %' or '{spec.example}'), found "
