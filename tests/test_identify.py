@@ -13,6 +13,7 @@ quantised to a 1024-line encoder read x4 (common practice for a bench encoder, n
 
 from __future__ import annotations
 
+import functools
 import json
 import math
 from pathlib import Path
@@ -42,8 +43,14 @@ SAMPLE_S = 50e-6
 NOISE_FRACTION = 0.01  # of the largest magnitude in the log (its "full scale")
 
 
-@pytest.fixture(scope="module")
+@pytest.fixture
 def bench_trace() -> dict[str, np.ndarray]:
+    """The noise-free log of the known motor (simulated once per test process)."""
+    return dict(_bench_trace())
+
+
+@functools.cache
+def _bench_trace() -> dict[str, np.ndarray]:
     """The noise-free log of the known motor, by dcsim.simulate."""
     events = "\n".join(
         f'[[events]]\nat = {t!r}\nset = {{ "control.voltage" = {v!r} }}\n' for t, v in STEPS

@@ -8,6 +8,7 @@ these are tests of layout and file handling, not physics checks. The one convers
 from __future__ import annotations
 
 import base64
+import functools
 import io
 import json
 import math
@@ -16,6 +17,7 @@ import re
 import shutil
 import struct
 import subprocess
+import tempfile
 from html.parser import HTMLParser
 from pathlib import Path
 
@@ -228,11 +230,16 @@ def parse(path: Path) -> Page:
     return page
 
 
-@pytest.fixture(scope="module")
-def written(tmp_path_factory) -> tuple[CheckReport, Path, list[Path]]:
-    """The winch report written once into a fresh directory."""
+@pytest.fixture
+def written() -> tuple[CheckReport, Path, list[Path]]:
+    """The winch report, written once per test process into a fresh directory."""
+    return _written()
+
+
+@functools.cache
+def _written() -> tuple[CheckReport, Path, list[Path]]:
     report = winch_report()
-    out = tmp_path_factory.mktemp("winch_report") / "out"
+    out = Path(tempfile.mkdtemp(prefix="dcsim-test-report-")) / "out"
     return report, out, write_report(report, out)
 
 

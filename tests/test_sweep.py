@@ -15,6 +15,7 @@ the start: the speed is steady to far below rounding (e^-50 ~ 2e-22).
 from __future__ import annotations
 
 import csv
+import functools
 import json
 import math
 import os
@@ -22,6 +23,7 @@ import re
 import signal
 import subprocess
 import sys
+import tempfile
 import time
 from pathlib import Path
 
@@ -68,9 +70,15 @@ def no_load_speed(v: float, r: float, k: float, b: float) -> float:
     return v * k / (r * b + k * k)
 
 
-@pytest.fixture(scope="module")
-def folder(tmp_path_factory):
-    path = tmp_path_factory.mktemp("sweep")
+@pytest.fixture
+def folder():
+    """A folder with the bench motor, made once per test process."""
+    return _folder()
+
+
+@functools.cache
+def _folder() -> Path:
+    path = Path(tempfile.mkdtemp(prefix="dcsim-test-sweep-"))
     (path / "bench.toml").write_text(BENCH_MOTOR, encoding="utf-8")
     return path
 
@@ -103,9 +111,15 @@ metrics = ["final_speed_rad_s", "peak_current_A", "i2t_A2s", "min_bus_voltage_V"
 """
 
 
-@pytest.fixture(scope="module")
-def mixed(folder):
+@pytest.fixture
+def mixed():
     """A grid x (nominal + corners + samples) sweep on two local workers, run once."""
+    return _mixed()
+
+
+@functools.cache
+def _mixed():
+    folder = _folder()
     sweep = write_sweep(folder, "mixed.toml", MIXED)
     out = folder / "mixed_out"
     outcome = run_sweep(sweep, out, workers=2)
@@ -822,7 +836,8 @@ def _toml(value) -> str:
         max_size=3,
     ),
 )
-def test_any_sweep_file_gives_a_spec_or_one_scenario_error(folder, top, tables):
+def test_any_sweep_file_gives_a_spec_or_one_scenario_error(top, tables):
+    folder = _folder()
     lines = ['base = "bench.toml"'] + [f"{k} = {_toml(v)}" for k, v in top.items()]
     for name, body in tables.items():
         lines.append(f"[{name}]")

@@ -490,7 +490,7 @@ def _verdict_block(v: Verdict) -> list[str]:
         out.append('<table class="values"><tbody>')
         for key, value in v.values.items():
             out.append(
-                f'<tr><th scope="row"><code>{_e(key)}</code></th>'
+                f'<tr><th><code>{_e(key)}</code></th>'
                 f"<td>{_e(_value_text(value))}</td></tr>"
             )
         out.append("</tbody></table>")
@@ -571,7 +571,7 @@ def report_html(report: CheckReport, pngs: Mapping[str, bytes], files: Mapping[s
         '<div class="scroll"><table class="verdicts">',
         "<thead><tr>"
         + "".join(
-            f'<th scope="col">{h}</th>'
+            f'<th>{h}</th>'
             for h in ("Status", "Check", "Figure", "Limit", "Margin", "Detail")
         )
         + "</tr></thead>",
@@ -614,8 +614,8 @@ def report_html(report: CheckReport, pngs: Mapping[str, bytes], files: Mapping[s
     out += ["<section>", "<h2>Runs behind the verdicts</h2>"]
     if report.runs:
         out.append(
-            '<table class="runs"><thead><tr><th scope="col">Run</th>'
-            '<th scope="col">What was changed</th></tr></thead><tbody>'
+            '<table class="runs"><thead><tr><th>Run</th>'
+            '<th>What was changed</th></tr></thead><tbody>'
         )
         for name, what in report.runs.items():
             out.append(f"<tr><td><code>{_e(name)}</code></td><td>{_e(what)}</td></tr>")
