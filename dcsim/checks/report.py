@@ -489,10 +489,7 @@ def _verdict_block(v: Verdict) -> list[str]:
     if v.values:
         out.append('<table class="values"><tbody>')
         for key, value in v.values.items():
-            out.append(
-                f'<tr><th><code>{_e(key)}</code></th>'
-                f"<td>{_e(_value_text(value))}</td></tr>"
-            )
+            out.append(f"<tr><th><code>{_e(key)}</code></th><td>{_e(_value_text(value))}</td></tr>")
         out.append("</tbody></table>")
     out.append("</div>")
     return out
@@ -571,8 +568,7 @@ def report_html(report: CheckReport, pngs: Mapping[str, bytes], files: Mapping[s
         '<div class="scroll"><table class="verdicts">',
         "<thead><tr>"
         + "".join(
-            f'<th>{h}</th>'
-            for h in ("Status", "Check", "Figure", "Limit", "Margin", "Detail")
+            f"<th>{h}</th>" for h in ("Status", "Check", "Figure", "Limit", "Margin", "Detail")
         )
         + "</tr></thead>",
         "<tbody>",
@@ -615,7 +611,7 @@ def report_html(report: CheckReport, pngs: Mapping[str, bytes], files: Mapping[s
     if report.runs:
         out.append(
             '<table class="runs"><thead><tr><th>Run</th>'
-            '<th>What was changed</th></tr></thead><tbody>'
+            "<th>What was changed</th></tr></thead><tbody>"
         )
         for name, what in report.runs.items():
             out.append(f"<tr><td><code>{_e(name)}</code></td><td>{_e(what)}</td></tr>")

@@ -81,6 +81,7 @@ __all__ = [
     "load_scenario_mapping",
     "load_scenario_text",
     "parse_toml",
+    "read_toml_text",
     "unknown_key_error",
 ]
 
@@ -148,12 +149,30 @@ def load_scenario(path: str | os.PathLike[str]) -> Scenario:
         raise ScenarioError(
             f"expected a scenario file path, found {describe_value(path)}"
         ) from None
+    return load_scenario_text(read_toml_text(name, "scenario file"), source=name)
+
+
+def read_toml_text(name: str, what: str) -> str:
+    """The UTF-8 text of a TOML file (a leading byte-order mark dropped).
+
+    Parameters
+    ----------
+    name : str
+        The file.
+    what : str
+        What it is, for the message (``"scenario file"``, ``"sweep file"``).
+
+    Raises
+    ------
+    ScenarioError
+        The file cannot be read or is not UTF-8 (one line naming the file).
+    """
     try:
         data = Path(name).read_bytes()
     except (OSError, ValueError) as err:
         reason = getattr(err, "strerror", None) or str(err)
         raise ScenarioError(
-            f"expected a readable scenario file, found that it cannot be read ({reason})",
+            f"expected a readable {what}, found that it cannot be read ({reason})",
             source=name,
         ) from None
     try:
@@ -164,7 +183,7 @@ def load_scenario(path: str | os.PathLike[str]) -> Scenario:
             f"at offset {err.start}, which is not UTF-8",
             source=name,
         ) from None
-    return load_scenario_text(text.removeprefix("\ufeff"), source=name)
+    return text.removeprefix("\ufeff")
 
 
 def load_scenario_text(text: str, source: str = "<text>") -> Scenario:

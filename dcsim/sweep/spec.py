@@ -47,6 +47,7 @@ from dcsim.scenario.load import (
     load_scenario,
     load_scenario_mapping,
     parse_toml,
+    read_toml_text,
     unknown_key_error,
 )
 from dcsim.scenario.schema import KeySpec, Scenario
@@ -267,23 +268,7 @@ def load_sweep(path: str | os.PathLike[str]) -> SweepSpec:
         The file or its base scenario cannot be read, or any value is not acceptable.
     """
     name = os.fspath(path)
-    try:
-        data = Path(name).read_bytes()
-    except (OSError, ValueError) as err:
-        reason = getattr(err, "strerror", None) or str(err)
-        raise ScenarioError(
-            f"expected a readable sweep file, found that it cannot be read ({reason})",
-            source=name,
-        ) from None
-    try:
-        text = data.decode("utf-8")
-    except UnicodeDecodeError as err:
-        raise ScenarioError(
-            f"expected UTF-8 text (as TOML requires), found the byte {data[err.start]:#04x} "
-            f"at offset {err.start}, which is not UTF-8",
-            source=name,
-        ) from None
-    return load_sweep_text(text.removeprefix("\ufeff"), source=name)
+    return load_sweep_text(read_toml_text(name, "sweep file"), source=name)
 
 
 def load_sweep_text(
