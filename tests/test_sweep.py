@@ -36,6 +36,7 @@ import dcsim
 from dcsim import cli
 from dcsim.errors import ScenarioError
 from dcsim.results.io import read_trace_csv
+from dcsim.results.summary import CAUTION
 from dcsim.sweep import load_sweep, load_sweep_text, read_results, run_sweep
 from dcsim.sweep.execute import CONFIRM_ABOVE_RUNS
 from dcsim.sweep.plan import Plan
@@ -530,7 +531,9 @@ metrics = ["final_speed_rad_s"]
     assert float(rows[0]["final_speed_rad_s"]) == pytest.approx(
         no_load_speed(V0, R0, K0, B0), rel=1e-12
     )  # Source: the closed form of the no-load speed (steady state)
-    assert "1 failed" in capsys.readouterr().out
+    out_text = capsys.readouterr().out
+    assert "1 failed" in out_text
+    assert out_text.splitlines()[0] == CAUTION  # every report opens with the caution
 
 
 def test_a_large_sweep_needs_confirmation(folder, capsys):

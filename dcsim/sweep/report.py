@@ -454,8 +454,11 @@ def _with_unit(name: str, unit: str) -> str:
 
 
 def format_report(report: SweepReport) -> str:
-    """The report as text for the terminal: counts, then the worst run of each metric."""
+    """The report as text for the terminal: the caution, the counts, then the worst run of
+    each metric."""
     lines = [
+        CAUTION,
+        "",
         f"{report.plan}: {report.failed} failed, {report.passed} of {report.runs} pass",
         "",
         "worst case of each metric (value, run, kind: the varied values):",
