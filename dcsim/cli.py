@@ -29,8 +29,7 @@ if TYPE_CHECKING:
 EXIT_OK = 0
 EXIT_FAILURE = 1
 EXIT_BAD_INPUT = 2
-EXIT_CHECK_FAILED = 3
-EXIT_RUNS_FAILED = 3
+EXIT_NOT_PASSED = 3  # a design check fails, or a sweep run fails or misses a criterion
 EXIT_INTERRUPTED = 130
 
 DEMO_SCENARIO = Path(__file__).with_name("data") / "demo.toml"
@@ -260,7 +259,7 @@ def _cmd_check(args: argparse.Namespace) -> int:
         import json
 
         _write(sys.stdout, json.dumps(report.as_dict(), indent=2, allow_nan=False) + "\n")
-    return EXIT_CHECK_FAILED if report.failed else EXIT_OK
+    return EXIT_NOT_PASSED if report.failed else EXIT_OK
 
 
 def _cmd_report(args: argparse.Namespace) -> int:
@@ -273,7 +272,7 @@ def _cmd_report(args: argparse.Namespace) -> int:
     lines = [format_table(report), "", f"files written to {_shown(out_dir)}:"]
     lines += [f"  {_shown(f)}" for f in files]
     _write(sys.stdout, "\n".join(lines) + "\n")
-    return EXIT_CHECK_FAILED if report.failed else EXIT_OK
+    return EXIT_NOT_PASSED if report.failed else EXIT_OK
 
 
 def _cmd_validate(args: argparse.Namespace) -> int:
@@ -518,7 +517,7 @@ def _cmd_sweep(args: argparse.Namespace) -> int:
     if traces:
         lines.append(f"  traces/{{{', '.join(traces)}}}/ (trace.csv, summary.json)")
     _write(sys.stdout, "\n".join(lines) + "\n")
-    return EXIT_OK if outcome.failed == 0 and outcome.passed == outcome.runs else EXIT_RUNS_FAILED
+    return EXIT_OK if outcome.failed == 0 and outcome.passed == outcome.runs else EXIT_NOT_PASSED
 
 
 # --------------------------------------------------------------------------------------------

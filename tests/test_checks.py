@@ -25,10 +25,19 @@ from dcsim.checks.regen import find_stops
 from dcsim.checks.session import run_checks
 from dcsim.plant.thermal import (
     ALPHA20_PER_K,
-    periodic_start_rise,
+    network_matrices,
+    network_rise,
+    periodic_start_rises,
     resistance_at,
-    temperature_rise,
 )
+from dcsim.scenario.schema import Thermal
+
+
+def _one_node_rise(t, power_W, r_th, tau, x0=0.0):
+    """The rise of the one-node network (the model under test) at the sample times [K]."""
+    a, b = network_matrices(Thermal(resistance=r_th, time_constant=tau))
+    return network_rise(t, power_W, a, b, np.array([x0]))[:, 0]
+
 
 # --------------------------------------------------------------------------------------------
 # The fuse heat integral
@@ -336,7 +345,7 @@ def test_steady_rise_and_time_constant():
     # Mass Transfer, 6th ed., sec. 5.1-5.3): constant P gives theta = P R_th (1 - exp(-t/tau)):
     # the rise settles at P R_th and reaches 63.2 % of it at t = tau.
     t = np.linspace(0.0, 3000.0, 601)
-    rise = temperature_rise(t, np.full(t.size, 40.0), 1.5, 300.0)
+    rise = _one_node_rise(t, np.full(t.size, 40.0), 1.5, 300.0)
     np.testing.assert_allclose(rise, 60.0 * (1.0 - np.exp(-t / 300.0)), rtol=1e-12, atol=1e-12)
     assert float(np.interp(300.0, t, rise)) == pytest.approx(60.0 * (1 - math.exp(-1)), 1e-12)
 
@@ -345,7 +354,7 @@ def test_rise_under_a_ramp_of_loss():
     # Source: the exact solution of theta' = (k t R - theta)/tau from 0:
     # theta = k R (t - tau (1 - exp(-t/tau))) (first-order ODE with a ramp input, derived).
     t = np.linspace(0.0, 100.0, 11)
-    rise = temperature_rise(t, 2.0 * t, 0.5, 30.0)
+    rise = _one_node_rise(t, 2.0 * t, 0.5, 30.0)
     np.testing.assert_allclose(rise, 1.0 * (t - 30.0 * (1 - np.exp(-t / 30.0))), rtol=1e-12)
 
 
@@ -365,7 +374,8 @@ def test_intermittent_duty_start_of_cycle():
     # over T - D.
     p_rth, tau, d, period = 50.0, 200.0, 60.0, 240.0
     end_from_zero = p_rth * -math.expm1(-d / tau)
-    start = periodic_start_rise(end_from_zero, d, period, tau)
+    a, _ = network_matrices(Thermal(resistance=1.0, time_constant=tau))
+    start = float(periodic_start_rises(np.array([end_from_zero]), a, d, period)[0])
     end = p_rth * -math.expm1(-d / tau) / -math.expm1(-period / tau)
     assert start == pytest.approx(end * math.exp(-(period - d) / tau), rel=1e-12)
 

@@ -14,7 +14,6 @@ from __future__ import annotations
 
 import math
 
-import numpy as np
 from matplotlib.figure import Figure
 
 from dcsim.checks.runs import CheckRuns
@@ -166,7 +165,7 @@ def thermal_figure(sc: Scenario, res, limit_K: float) -> Figure:
     t = res.trace["time_s"]
     ax.plot(
         t,
-        np.asarray(res.trace["winding_temperature_K"]) - 273.15,
+        celsius(res.trace["winding_temperature_K"]),
         color="#b03a2e",
         lw=1.4,
         label="winding (average, model)",
@@ -174,7 +173,7 @@ def thermal_figure(sc: Scenario, res, limit_K: float) -> Figure:
     if "housing_temperature_K" in res.trace:
         ax.plot(
             t,
-            np.asarray(res.trace["housing_temperature_K"]) - 273.15,
+            celsius(res.trace["housing_temperature_K"]),
             color="#8a5a2b",
             lw=1.2,
             label="housing (model)",

@@ -115,8 +115,10 @@ def find_stops(sc: Scenario, result: SimulationResult) -> list[Stop]:
     groups = np.split(idx, np.flatnonzero(np.diff(idx) > 5) + 1)
     stops = []
     inertia = sc.motor.inertia + sc.load.inertia
-    res = tr["winding_resistance_ohm"] if "winding_resistance_ohm" in tr else None
-    r = res if res is not None else np.full(t.size, sc.motor.resistance)
+    if "winding_resistance_ohm" in tr:
+        r = tr["winding_resistance_ohm"]
+    else:
+        r = np.full(t.size, sc.motor.resistance)
     brake = tr["brake_current_A"] if "brake_current_A" in tr else np.zeros(t.size)
     for g in groups:
         a, b = int(g[0]), int(g[-1])

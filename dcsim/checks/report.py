@@ -27,6 +27,7 @@ from pathlib import Path
 from typing import Any
 
 from dcsim.checks.verdict import CAUTION, STATUSES, CheckReport, Verdict
+from dcsim.plant.thermal import celsius as to_celsius
 from dcsim.results.io import _STAGING_PREFIX, _commit, atomic_write
 
 REPORT_FILE = "report.html"
@@ -34,8 +35,6 @@ VERDICTS_FILE = "verdicts.json"
 REPORT_DPI = 110
 """Resolution of the figure PNGs [dots per inch]."""
 
-ZERO_CELSIUS_K = 273.15
-"""0 degC in kelvin [K] (SI Brochure, 9th ed. 2019, section 2.3.1: t/degC = T/K - 273.15)."""
 
 GROUP_ORDER = ("fuse", "regeneration", "thermal", "duty", "loops")
 """Order of the group sections; any other group follows in order of first appearance."""
@@ -129,7 +128,7 @@ def format_quantity(
         return "never"
     if celsius and math.isfinite(x):
         degree = "degC" if plain else "\u00b0C"
-        return f"{x:.1f} K ({x - ZERO_CELSIUS_K:.1f} {degree})"
+        return f"{x:.1f} K ({to_celsius(x):.1f} {degree})"
     number = format_number(x)
     return number if unit in ("", "-") else f"{number} {unit}"
 

@@ -39,6 +39,7 @@ from dcsim.plant.thermal import (
     network_rise,
     periodic_start_rises,
     resistance_at,
+    time_constants_s,
     torque_constant_at,
 )
 from dcsim.results.trace import SimulationResult, Summary, Trace
@@ -96,7 +97,8 @@ def simulate_with_winding(
         return _finish(scenario, result, temps, r, None, start, passes=1)
 
     duration = scenario.simulation.duration
-    per_tau = math.ceil(SEGMENTS_PER_TAU * duration / _fastest_relevant_tau(th, a))
+    fastest = float(time_constants_s(a)[0])  # the winding node's, which R must follow
+    per_tau = math.ceil(SEGMENTS_PER_TAU * duration / fastest)
     segments = int(min(MAX_SEGMENTS, max(MIN_SEGMENTS, per_tau)))
     edges = np.linspace(0.0, duration, segments + 1)
     mids = 0.5 * (edges[:-1] + edges[1:])
@@ -135,13 +137,6 @@ def simulate_with_winding(
         "resistance, or set thermal.coupled = false to see the uncoupled rise."
         + ("" if cycle is None else " (with simulation.cycle_time: the periodic state)")
     )
-
-
-def _fastest_relevant_tau(th, a: np.ndarray) -> float:
-    """The time constant the resistance updates must resolve: the winding node's [s]."""
-    if not th.two_node:
-        return float(th.time_constant)
-    return float(1.0 / np.max(np.abs(np.linalg.eigvals(a))))
 
 
 def _initial_rises(th, a: np.ndarray) -> np.ndarray:

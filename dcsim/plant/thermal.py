@@ -13,16 +13,18 @@ The copper loss is ``P = R(T) i^2``, with the resistance of annealed copper at t
 
     R(T) = R20 (1 + alpha20 (T - 20 degC)),      alpha20 = 0.00393 /K
 
-The rise is integrated exactly for a loss that is linear between samples (first-order hold):
-with ``u = R_th P`` going from ``u0`` to ``u1`` over ``h`` (slope ``b = (u1 - u0)/h``), the
-rise ``theta = T - T_amb`` obeys ``theta' = (u - theta)/tau``, whose solution is
+One node, or two (winding -> housing -> ambient: :func:`network_matrices`), the rises over
+the ambient obey ``theta' = A theta + b P``, integrated exactly for a loss linear between samples
+(first-order hold, :func:`network_rise`). For one node with ``u = R_th P`` going from ``u0`` to
+``u1`` over ``h`` (slope ``b = (u1 - u0)/h``) that is
 ``theta(h) = u1 - b tau + (theta0 - u0 + b tau) exp(-h/tau)``.
 
 A duty cycle of length ``D`` repeated every ``T_c`` (the drive off in between) settles to a
 periodic state: the response ``theta_z`` from zero over one cycle ends at
 ``theta_z(D) exp(-(T_c - D)/tau)``, so the periodic start is
 ``theta_0 = theta_z(D) exp(-(T_c - D)/tau) / (1 - exp(-T_c/tau))`` and the hottest cycle is
-``theta(t) = theta_z(t) + theta_0 exp(-t/tau)`` (superposition; linear model).
+``theta(t) = theta_z(t) + theta_0 exp(-t/tau)`` (superposition; linear model; the network's
+form is :func:`periodic_start_rises`).
 
 References
 ----------
@@ -35,8 +37,6 @@ References
 """
 
 from __future__ import annotations
-
-import math
 
 import numpy as np
 
@@ -76,76 +76,6 @@ def resistance_at(
     return r20 * (1.0 + ALPHA20_PER_K * (np.asarray(temperature_K, dtype=float) - T20_K))
 
 
-def temperature_rise(
-    time_s: np.ndarray,
-    power_W: np.ndarray,
-    thermal_resistance_K_W: float,
-    time_constant_s: float,
-    initial_rise_K: float = 0.0,
-) -> np.ndarray:
-    """Winding temperature rise over the ambient under a sampled loss (exact, first-order hold).
-
-    Parameters
-    ----------
-    time_s : array_like
-        Sample times, non-decreasing [s].
-    power_W : array_like
-        Loss at those times [W], linear in between.
-    thermal_resistance_K_W : float
-        Thermal resistance to the ambient [K/W].
-    time_constant_s : float
-        Thermal time constant [s].
-    initial_rise_K : float
-        Rise at ``time_s[0]`` [K].
-
-    Returns
-    -------
-    numpy.ndarray
-        The rise ``T - T_amb`` at each sample [K] (module docstring for the formula).
-    """
-    t = np.asarray(time_s, dtype=float)
-    u = thermal_resistance_K_W * np.asarray(power_W, dtype=float)
-    tau = float(time_constant_s)
-    theta = np.empty_like(t)
-    if t.size == 0:
-        return theta
-    theta[0] = initial_rise_K
-    h = np.diff(t)
-    decay = np.exp(-h / tau)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        slope_tau = np.where(h > 0.0, (u[1:] - u[:-1]) / h * tau, 0.0)
-    forced = u[1:] - slope_tau
-    carry = -u[:-1] + slope_tau
-    th = float(initial_rise_K)
-    for k in range(h.size):  # a recursion: one multiply-add per sample
-        th = forced[k] + (th + carry[k]) * decay[k]
-        theta[k + 1] = th
-    return theta
-
-
-def periodic_start_rise(
-    end_rise_from_zero_K: float, duration_s: float, cycle_time_s: float, time_constant_s: float
-) -> float:
-    """Rise at the start of each cycle once a repeated duty cycle has settled [K].
-
-    ``theta_0 = theta_z(D) exp(-(T_c - D)/tau) / (1 - exp(-T_c/tau))`` (module docstring).
-
-    Parameters
-    ----------
-    end_rise_from_zero_K : float
-        Rise at the end of one cycle started from zero rise [K].
-    duration_s : float
-        Length ``D`` of the driven part of the cycle [s].
-    cycle_time_s : float
-        Cycle period ``T_c`` >= ``D`` [s]; the drive is off (no loss) for the rest.
-    time_constant_s : float
-        Thermal time constant [s].
-    """
-    tau = float(time_constant_s)
-    rest = math.exp(-(cycle_time_s - duration_s) / tau)
-    return end_rise_from_zero_K * rest / -math.expm1(-cycle_time_s / tau)
-
-
 def network_matrices(thermal) -> tuple[np.ndarray, np.ndarray]:
     """``A``, ``b`` of the thermal network ``theta' = A theta + b P`` (rises over ambient).
 
@@ -170,6 +100,12 @@ def network_matrices(thermal) -> tuple[np.ndarray, np.ndarray]:
     c_w, c_h = thermal.winding_capacity, thermal.housing_capacity
     a = np.array([[-g_wh / c_w, g_wh / c_w], [g_wh / c_h, -(g_wh + g_ha) / c_h]])
     return a, np.array([1.0 / c_w, 0.0])
+
+
+def time_constants_s(a: np.ndarray) -> np.ndarray:
+    """Time constants of the network ``theta' = A theta``, fastest first [s]: ``-1 / s_k`` of
+    the eigenvalues (real and negative for a passive RC network)."""
+    return np.sort(-1.0 / np.linalg.eigvals(a).real)
 
 
 def _hold_blocks(a: np.ndarray, b: np.ndarray, h: float):
@@ -234,7 +170,7 @@ def periodic_start_rises(
     The network evolves freely for the rest ``T_c - D`` of each cycle, so the settled start
     solves ``x0 = e^{A (T_c - D)} (e^{A D} x0 + x_z(D))``:
     ``x0 = (I - e^{A T_c})^{-1} e^{A (T_c - D)} x_z(D)`` (superposition; the one-node case is
-    :func:`periodic_start_rise`).
+    ``theta_0 = theta_z(D) exp(-(T_c - D)/tau) / (1 - exp(-T_c/tau))``, module docstring).
     """
     from scipy.linalg import expm
 
@@ -269,6 +205,6 @@ def torque_constant_at(
     return torque_constant * (1.0 + coefficient * (np.asarray(magnet_K, dtype=float) - reference_K))
 
 
-def celsius(temperature_K: float) -> float:
-    """Temperature in degC for display."""
+def celsius(temperature_K: float | np.ndarray) -> float | np.ndarray:
+    """Temperature in degC for display (t/degC = T/K - 273.15, SI Brochure, 9th ed., 2.3.1)."""
     return temperature_K - ZERO_CELSIUS_K

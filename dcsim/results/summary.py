@@ -166,12 +166,14 @@ def format_summary(summary: Mapping[str, Any]) -> str:
     if get("bridge_model") is not None:
         _power_stage_rows(summary, row)
     if get("peak_winding_temperature_K") is not None:
-        peak_c = float(get("peak_winding_temperature_K")) - 273.15
+        from dcsim.plant.thermal import celsius
+
+        peak_c = celsius(float(get("peak_winding_temperature_K")))
         row(
             "winding temperature (thermal model)",
             f"peak {_num(peak_c, 'degC', digits=4)} at "
             f"{_time(get('peak_winding_temperature_time_s'))}, final "
-            f"{_num(float(get('final_winding_temperature_K')) - 273.15, 'degC', digits=4)}",
+            f"{_num(celsius(float(get('final_winding_temperature_K'))), 'degC', digits=4)}",
         )
     if get("control_mode") is not None:
         lines.append("")

@@ -1194,18 +1194,6 @@ class Thermal:
             return MAGNET_COEFFICIENTS_PER_K[self.magnet_material]
         return 0.0
 
-    @property
-    def slowest_time_constant_s(self) -> float:
-        """The longest time constant of the network [s]."""
-        if not self.two_node:
-            return float(self.time_constant)
-        import numpy as np
-
-        from dcsim.plant.thermal import network_matrices
-
-        a, _ = network_matrices(self)
-        return float(1.0 / np.min(np.abs(np.linalg.eigvals(a))))
-
 
 @dataclass(frozen=True)
 class Checks:
