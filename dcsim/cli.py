@@ -1,5 +1,5 @@
 """The ``dcsim`` command: ``run``, ``validate``, ``tune``, ``check``, ``report``, ``sweep``,
-``motor``, ``fit`` and ``demo``.
+``motor``, ``fit``, ``duty-curve`` and ``demo``.
 
 Exit codes: 0 success; 3 a design check fails (``check``, ``report``) or a sweep finished with
 runs that failed (an error or a criterion); 2 bad input (scenario file, command line), with one
@@ -466,6 +466,44 @@ def _cmd_fit(args: argparse.Namespace) -> int:
     return EXIT_OK
 
 
+def _cmd_duty_curve(args: argparse.Namespace) -> int:
+    out_dir = (
+        Path(args.out) if args.out else DEFAULT_RUN_ROOT / (Path(args.scenario).stem + "-duty")
+    )
+    _check_out_dir(out_dir)
+    if args.points < 2:
+        raise _UsageError(f"--points: expected 2 or more, found {args.points}")
+    scenario = _load(args.scenario)
+
+    import numpy as np
+
+    from dcsim.results.io import atomic_write
+    from dcsim.studies.duty_curve import format_duty_curve, plot_duty_curve, speed_duty_curve
+
+    duties = np.linspace(1.0 / args.points, 1.0, args.points)
+    with _Progress(sys.stderr, f"{Path(args.scenario).name} [speed against duty]") as progress:
+        curve = speed_duty_curve(scenario, duties, progress=progress.update)
+    out_dir.mkdir(parents=True, exist_ok=True)
+    rows = curve.as_rows()
+    header = list(rows[0])
+
+    def write_csv(tmp: Path) -> None:
+        with open(tmp, "w", encoding="utf-8") as fh:
+            fh.write(",".join(header) + "\n")
+            for r in rows:
+                fh.write(",".join(str(r[k]) for k in header) + "\n")
+
+    files = [
+        atomic_write(out_dir / "duty_curve.csv", write_csv),
+        plot_duty_curve(curve, out_dir / "duty_curve.png"),
+    ]
+    lines = [format_duty_curve(curve), "", f"files written to {_shown(out_dir)}:"]
+    lines += [f"  {_shown(f)}" for f in files]
+    lines += ["", _CAUTION_EPILOG]
+    _write(sys.stdout, "\n".join(lines) + "\n")
+    return EXIT_OK
+
+
 def _cmd_sweep(args: argparse.Namespace) -> int:
     given = args.sweep
     if not given.strip():
@@ -726,6 +764,25 @@ def build_parser() -> argparse.ArgumentParser:
     )
     sweep.add_argument("--yes", action="store_true", help="confirm a sweep of more than 10000 runs")
     sweep.set_defaults(handler=_cmd_sweep)
+
+    duty = commands.add_parser(
+        "duty-curve",
+        parents=[common],
+        help="settled speed against duty in slow, fast and mixed decay (switching bridge)",
+        description="Run a switching-bridge scenario in voltage mode at N duties in each decay "
+        "mode (slow, fast, mixed; the scenario's other bridge keys kept) and write "
+        "DIR/duty_curve.csv and DIR/duty_curve.png: the settled mean speed (last half of each "
+        "run) and the current ripple against duty, which shows the light-load non-linearity "
+        "of fast decay.",
+    )
+    duty.add_argument("scenario", metavar="SCENARIO", help="scenario file (TOML)")
+    duty.add_argument(
+        "--out", metavar="DIR", help="output directory (default: ./dcsim-out/<stem>-duty)"
+    )
+    duty.add_argument(
+        "--points", type=int, default=10, metavar="N", help="duties from 1/N to 1 (default 10)"
+    )
+    duty.set_defaults(handler=_cmd_duty_curve)
 
     demo = commands.add_parser(
         "demo",

@@ -641,6 +641,7 @@ POWER_STAGE_ENERGY_TERMS = (
     "energy_capacitor_esr_J",
     "energy_precharge_loss_J",
     "energy_fuse_arc_J",
+    "energy_current_sense_J",
 )
 """The further terms of the averaged and switching bridge models."""
 

@@ -352,8 +352,23 @@ def bridge_parameters(sc: Scenario):
     q[B.Q_ESW] = br.switching_energy
     q[B.Q_ESW_V] = br.switching_energy_voltage
     q[B.Q_ESW_I] = br.switching_energy_current
-    q[B.Q_IPK] = br.peak_current_limit
+    q[B.Q_IPK] = br.trip_current_A
     q[B.Q_BLANK] = br.blanking_time
+    # the decay of the PWM off-time and after the current comparator trips
+    if br.decay is not None:
+        q[B.Q_DECAY] = 1.0
+        q[B.Q_SLOW_HIGH] = 1.0 if br.slow_decay == "high-side" else 0.0
+        q[B.Q_FAST_SYNC] = 1.0 if br.fast_decay == "synchronous" else 0.0
+        q[B.Q_FAST_FRAC] = {"slow": 0.0, "fast": 1.0, "mixed": br.fast_decay_fraction}[br.decay]
+    elif br.pwm == "bipolar":  # the comparator turns on the opposite diagonal
+        q[B.Q_FAST_SYNC] = 1.0
+        q[B.Q_FAST_FRAC] = 1.0
+    q[B.Q_CHOP_FIXED] = 1.0 if br.current_regulation == "fixed-off-time" else 0.0
+    q[B.Q_TOFF] = br.off_time if br.off_time is not None else 0.0
+    q[B.Q_TCD] = br.comparator_delay
+    q[B.Q_TONMIN] = br.min_on_time
+    q[B.Q_SENSE_BUS] = 0.0 if br.sense_location == "in-line" else 1.0
+    q[B.Q_RSENSE] = br.sense_resistance
     if sc.brake is not None:
         q[B.Q_BRAKE_R] = sc.brake.resistance
         q[B.Q_BRAKE_ON] = sc.brake.on_voltage
@@ -364,6 +379,10 @@ def bridge_parameters(sc: Scenario):
         q[B.Q_AUTO_RESTART] = 1.0 if sc.protection.restart == "auto" else 0.0
         q[B.Q_RESTART_DELAY] = sc.protection.restart_delay
         q[B.Q_RESTART_MARGIN] = sc.protection.restart_margin
+        q[B.Q_OCP] = sc.protection.over_current
+        q[B.Q_OCP_DG] = sc.protection.over_current_deglitch
+        q[B.Q_OCP_RETRY] = 1.0 if sc.protection.over_current_action == "retry" else 0.0
+        q[B.Q_OCP_RT] = sc.protection.over_current_retry_time
     q[B.Q_PRE_V] = math.inf
     if sc.precharge is not None:
         q[B.Q_PRE_R] = sc.precharge.resistance

@@ -63,9 +63,13 @@ from dcsim.engine.bridge_layout import (
     A_BUS_MIN,
     A_BYPASS_TIME,
     A_CACHE_MISSES,
+    A_CHOP_AT,
     A_COPPER,
     A_COUPLING,
     A_ESR,
+    A_FORCE_END,
+    A_FORCE_FAST,
+    A_FORCE_START,
     A_FRICTION,
     A_FUSE_ARC,
     A_FUSE_HEAT,
@@ -75,10 +79,13 @@ from dcsim.engine.bridge_layout import (
     A_LIMIT_EVENTS,
     A_LOAD,
     A_LOCK,
+    A_OCP_SINCE,
     A_PEAK_I,
     A_PEAK_I_TIME,
     A_PERIODS,
     A_PRECHARGE,
+    A_PULSE_T0,
+    A_SENSE,
     A_SOURCE_LOSS,
     A_SPLITS,
     A_SUPPLY,
@@ -92,17 +99,19 @@ from dcsim.engine.bridge_layout import (
     LEG_LOW,
     LEG_OFF,
     M_BRAKE,
+    M_CHOP,
     M_FSIGN,
     M_LEG_A,
     M_LEG_B,
-    M_LIMITED,
     M_MELTED,
+    M_OCP,
     M_OPEN,
     M_PRE,
     M_SEG,
     M_SIGMA,
     M_STUCK,
     M_TRIP,
+    MAX_CHOPS,
     MAX_TRIPS,
     N_A,
     Q_AUTO_RESTART,
@@ -118,12 +127,16 @@ from dcsim.engine.bridge_layout import (
     Q_BRAKE_ON,
     Q_BRAKE_R,
     Q_C,
+    Q_CHOP_FIXED,
     Q_COUNTS,
+    Q_DECAY,
     Q_EDGE,
     Q_ESR,
     Q_ESW,
     Q_ESW_I,
     Q_ESW_V,
+    Q_FAST_FRAC,
+    Q_FAST_SYNC,
     Q_FS,
     Q_FUSE,
     Q_FUSE_IMIN,
@@ -136,6 +149,10 @@ from dcsim.engine.bridge_layout import (
     Q_LS,
     Q_MINPULSE,
     Q_MOD,
+    Q_OCP,
+    Q_OCP_DG,
+    Q_OCP_RETRY,
+    Q_OCP_RT,
     Q_OV,
     Q_PRE_R,
     Q_PRE_V,
@@ -145,11 +162,17 @@ from dcsim.engine.bridge_layout import (
     Q_RESTART_MARGIN,
     Q_RON,
     Q_RS,
+    Q_RSENSE,
+    Q_SENSE_BUS,
     Q_SLOPE,
+    Q_SLOW_HIGH,
     Q_SWITCHING,
     Q_TC,
+    Q_TCD,
     Q_TD,
     Q_TL,
+    Q_TOFF,
+    Q_TONMIN,
     Q_UNIPOLAR,
     Q_UV,
     Q_VCMD,
@@ -170,6 +193,7 @@ from dcsim.engine.bridge_layout import (
     R_LOAD_TORQUE,
     R_MOTOR_TORQUE,
     R_POSITION,
+    R_SENSED,
     R_SOC,
     R_SOURCE_V,
     R_SPEED,
@@ -189,6 +213,7 @@ from dcsim.engine.bridge_layout import (
     TRIP_BUS_COLLAPSE,
     TRIP_BYPASS,
     TRIP_FUSE,
+    TRIP_OVER_CURRENT,
     TRIP_OVER_VOLTAGE,
     TRIP_RESTART,
     TRIP_UNDER_VOLTAGE,
@@ -204,7 +229,7 @@ F_ICAP = 3  # capacitor current
 F_DPLUS = 4  # L di/dt at i = 0 if the bridge conducted for positive current
 F_DMINUS = 5  # ... for negative current
 F_G0 = 6  # first guard row: every guard of the regime is a linear form, >= 0 while it holds
-MAX_G = 16
+MAX_G = 20
 N_F = F_G0 + MAX_G + 2  # the last two: the peak current limit (while active)
 # scalars of the present regime (`fsc`)
 C_G = 0  # bridge gain g
@@ -214,8 +239,10 @@ C_GBR = 3  # brake conductance [S]
 C_SENS = 4  # 1 when the connection depends on the current direction
 C_RSRC = 5  # supply-line resistance incl. pre-charge [ohm]
 C_NG = 6  # number of guard rows (without the limit rows)
-N_C = 7
-N_WORK = 18  # values per point kept by `point_values`
+C_RSN = 7  # the part of C_RB in the current-sense resistor [ohm]
+C_SGAIN = 8  # sensed current = C_SGAIN * i (1 in-line; the bridge gain g on the bus side)
+N_C = 9
+N_WORK = 19  # values per point kept by `point_values`
 CACHE_SLOTS = 4096
 FORM_SLOTS = 256
 MAX_BP = 64  # schedule breakpoints per period beyond the grid
@@ -240,14 +267,22 @@ def connection(leg_a, leg_b, sigma, q):
     """Bridge gain, series resistance, diode-drop term and direction sensitivity.
 
     ``sigma`` is the current direction (+1 or -1) the diodes of an off leg conduct for.
-    Returns ``(g, r_b [ohm], v_drop [V], sensitive)``.
+    Returns ``(g, r_b [ohm], v_drop [V], sensitive, r_sense [ohm])``; ``r_b`` includes the
+    current-sense resistor ``r_sense`` where the current passes it: always when it is in line
+    with the armature; on the bus side (low- or high-side) when exactly one leg connects to
+    that rail, i.e. ``|g|`` times (a current recirculating through both low-side or both
+    high-side switches does not pass it). The averaged model weights it by the fraction of
+    the period the bus carries the current (``|m|`` unipolar, 1 bipolar).
     """
     if leg_a == LEG_AVG:
         delta = 2.0 * q[Q_TD] * q[Q_FS]  # fraction of the period each leg spends in dead time
         g = q[Q_MOD] - delta * sigma
-        rb = 2.0 * q[Q_RON] * (1.0 - delta)
+        rsn = q[Q_RSENSE]
+        if q[Q_SENSE_BUS] > 0.5 and q[Q_UNIPOLAR] > 0.5:
+            rsn *= abs(q[Q_MOD])
+        rb = 2.0 * q[Q_RON] * (1.0 - delta) + rsn
         vdrop = 2.0 * q[Q_VD] * delta * sigma
-        return g, rb, vdrop, delta > 0.0
+        return g, rb, vdrop, delta > 0.0, rsn
     n_sw = 0
     n_d = 0
     if leg_a == LEG_HIGH:
@@ -268,7 +303,9 @@ def connection(leg_a, leg_b, sigma, q):
     else:  # current into B: upper diode; out of B: lower diode
         sb = 1.0 if sigma > 0.0 else 0.0
         n_d += 1
-    return sa - sb, n_sw * q[Q_RON], n_d * q[Q_VD] * sigma, n_d > 0
+    g = sa - sb
+    rsn = q[Q_RSENSE] * (abs(g) if q[Q_SENSE_BUS] > 0.5 else 1.0)
+    return g, n_sw * q[Q_RON] + rsn, n_d * q[Q_VD] * sigma, n_d > 0, rsn
 
 
 @njit(cache=True, error_model="numpy", inline="always")
@@ -280,7 +317,7 @@ def bridge_enabled(md):
 def compute_forms(md, q, forms, fsc):
     """Linear forms (node voltage, supply current, ...) and scalars of the present regime."""
     sigma = 1.0 if md[M_SIGMA] >= 0 else -1.0
-    g, rb, vdrop, sens = connection(md[M_LEG_A], md[M_LEG_B], sigma, q)
+    g, rb, vdrop, sens, rsn = connection(md[M_LEG_A], md[M_LEG_B], sigma, q)
     open_line = md[M_OPEN] == 1 or md[M_MELTED] == 1
     rsrc = q[Q_RS] + (q[Q_PRE_R] if md[M_PRE] == 1 else 0.0)
     ls = q[Q_LS]
@@ -321,8 +358,8 @@ def compute_forms(md, q, forms, fsc):
         for j in range(N_A):
             forms[F_ICAP, j] = forms[F_IS, j] - gbr * forms[F_VN, j]
         forms[F_ICAP, S_I] -= g
-    gp, rbp, vdp, sp = connection(md[M_LEG_A], md[M_LEG_B], 1.0, q)
-    gn, rbn, vdn, sn = connection(md[M_LEG_A], md[M_LEG_B], -1.0, q)
+    gp, rbp, vdp, sp, _ = connection(md[M_LEG_A], md[M_LEG_B], 1.0, q)
+    gn, rbn, vdn, sn, _ = connection(md[M_LEG_A], md[M_LEG_B], -1.0, q)
     for j in range(N_A):
         forms[F_DPLUS, j] = gp * forms[F_VN, j]
         forms[F_DMINUS, j] = gn * forms[F_VN, j]
@@ -336,6 +373,8 @@ def compute_forms(md, q, forms, fsc):
     fsc[C_GBR] = gbr
     fsc[C_SENS] = 1.0 if sens else 0.0
     fsc[C_RSRC] = rsrc
+    fsc[C_RSN] = rsn
+    fsc[C_SGAIN] = g if q[Q_SENSE_BUS] > 0.5 else 1.0
     _guard_rows(md, q, forms, fsc)
 
 
@@ -386,6 +425,18 @@ def _guard_rows(md, q, forms, fsc):
         forms[n, S_ONE] -= sign * level
         n += 1
     if bridge_enabled(md):
+        if q[Q_OCP] > 0.0:
+            sg = fsc[C_SGAIN]
+            if md[M_OCP] == 0:  # I_ocp -+ sensed >= 0
+                forms[n, S_I] = -sg
+                forms[n, S_ONE] = q[Q_OCP]
+                forms[n + 1, S_I] = sg
+                forms[n + 1, S_ONE] = q[Q_OCP]
+                n += 2
+            elif md[M_OCP] != 2:  # above the level: sign * sensed - I_ocp >= 0
+                forms[n, S_I] = md[M_OCP] * sg
+                forms[n, S_ONE] = -q[Q_OCP]
+                n += 1
         if q[Q_OV] > 0.0:
             for j in range(N_A):
                 forms[n, j] = -forms[F_VN, j]
@@ -531,7 +582,7 @@ def point_values(y, md, q, forms, fsc, work, row):
     else:
         work[row, 4] = q[Q_B] * w * w + q[Q_TC] * md[M_FSIGN] * w
     work[row, 5] = q[Q_TL] * w
-    work[row, 6] = fsc[C_RB] * i * i + fsc[C_VDROP] * i
+    work[row, 6] = (fsc[C_RB] - fsc[C_RSN]) * i * i + fsc[C_VDROP] * i
     work[row, 7] = fsc[C_GBR] * vn * vn
     work[row, 8] = q[Q_ESR] * icap * icap
     work[row, 9] = (fsc[C_RSRC] - q[Q_RS]) * isrc * isrc
@@ -546,6 +597,7 @@ def point_values(y, md, q, forms, fsc, work, row):
     work[row, 15] = isrc
     work[row, 16] = vsrc
     work[row, 17] = fsc[C_GBR] * vn
+    work[row, 18] = fsc[C_RSN] * i * i
 
 
 @njit(cache=True, error_model="numpy", inline="always")
@@ -568,6 +620,7 @@ def add_integrals(tau, t0, md, q, work, acc):
     wm = 4.0 * tau / 6.0
     for k in range(10):
         acc[_ACC_OF_WORK[k]] += w0 * (work[0, k] + work[2, k]) + wm * work[1, k]
+    acc[A_SENSE] += w0 * (work[0, 18] + work[2, 18]) + wm * work[1, 18]
     for r in range(1, 3):
         t = t0 + 0.5 * tau * r
         ia = math.sqrt(work[r, 0])
@@ -617,6 +670,23 @@ def log_trip(trips, acc, t, kind, value):
         trips[1 + n, 1] = kind
         trips[1 + n, 2] = value
         trips[0, 0] = n + 1
+
+
+@njit(cache=True, error_model="numpy")
+def trip_bridge(md, acc, trips, t, kind, value):
+    """Disable the bridge (every switch off) after a trip of ``kind``; the comparator's
+    decay and an over-current deglitch in progress end with it."""
+    md[M_TRIP] = 1
+    md[M_LEG_A] = LEG_OFF
+    md[M_LEG_B] = LEG_OFF
+    md[M_OCP] = 2 if kind == TRIP_OVER_CURRENT else 0
+    md[M_CHOP] = 0
+    acc[A_FORCE_START] = -math.inf
+    acc[A_FORCE_FAST] = -math.inf
+    acc[A_FORCE_END] = -math.inf
+    acc[A_CHOP_AT] = math.inf
+    acc[A_TRIP_TIME] = t
+    log_trip(trips, acc, t, kind, value)
 
 
 @njit(cache=True, error_model="numpy")
@@ -684,20 +754,30 @@ def update_modes(y, md, q, forms, fsc, t, acc, trips, ocv_soc, ocv_v):
                 continue
         if bridge_enabled(md):
             kind = 0
-            if q[Q_OV] > 0.0 and vn >= q[Q_OV]:
-                kind = TRIP_OVER_VOLTAGE
-            elif q[Q_UV] > 0.0 and vn <= q[Q_UV]:
-                kind = TRIP_UNDER_VOLTAGE
-            elif vn < 0.0:
-                # the bus capacitor is empty (a melted fuse, a blocked source): the bridge
-                # cannot hold its duty; it turns off and its diodes clamp the bus
-                kind = TRIP_BUS_COLLAPSE
+            value = vn
+            if q[Q_OCP] > 0.0:
+                sensed = fsc[C_SGAIN] * i
+                if md[M_OCP] == 0 and abs(sensed) >= q[Q_OCP]:
+                    if q[Q_OCP_DG] > 0.0:
+                        md[M_OCP] = 1 if sensed > 0.0 else -1
+                        acc[A_OCP_SINCE] = t
+                        continue
+                    kind = TRIP_OVER_CURRENT
+                    value = i
+                elif md[M_OCP] in (1, -1) and md[M_OCP] * sensed < q[Q_OCP]:
+                    md[M_OCP] = 0
+                    continue
+            if kind == 0:
+                if q[Q_OV] > 0.0 and vn >= q[Q_OV]:
+                    kind = TRIP_OVER_VOLTAGE
+                elif q[Q_UV] > 0.0 and vn <= q[Q_UV]:
+                    kind = TRIP_UNDER_VOLTAGE
+                elif vn < 0.0:
+                    # the bus capacitor is empty (a melted fuse, a blocked source): the
+                    # bridge cannot hold its duty; it turns off and its diodes clamp the bus
+                    kind = TRIP_BUS_COLLAPSE
             if kind != 0:
-                md[M_TRIP] = 1
-                md[M_LEG_A] = LEG_OFF
-                md[M_LEG_B] = LEG_OFF
-                acc[A_TRIP_TIME] = t
-                log_trip(trips, acc, t, kind, vn)
+                trip_bridge(md, acc, trips, t, kind, value)
                 continue
         if md[M_PRE] == 1 and vn >= q[Q_PRE_V]:
             md[M_PRE] = 0
@@ -893,11 +973,15 @@ def modulation(q):
     The command is ``control.voltage / nominal supply voltage``, clipped to +-1, turned into
     leg duties (bipolar: ``d_A = (1 + m)/2``, ``d_B = 1 - d_A``; unipolar: ``d_A = (1 + m)/2``,
     ``d_B = (1 - m)/2``), quantised to the timer counts and with pulses (high or low) shorter
-    than the minimum pulse dropped.
+    than the minimum pulse dropped. Drive/decay PWM (``Q_DECAY``): the drive duty ``d = |m|``
+    is returned as ``d_A`` (``d_B = 0``) and ``m = sgn(m) d``.
     """
     vnom = q[Q_VNOM]
     m = q[Q_VCMD] / vnom if vnom > 0.0 else 0.0
     m = min(1.0, max(-1.0, m))
+    if q[Q_DECAY] > 0.5:
+        d = _shape_duty(abs(m), q)
+        return d, 0.0, (d if m >= 0.0 else -d)
     da = _shape_duty(0.5 * (1.0 + m), q)
     if q[Q_UNIPOLAR] > 0.5:
         db = _shape_duty(0.5 * (1.0 - m), q)
@@ -921,73 +1005,71 @@ def _shape_duty(d, q):
     return d
 
 
-@njit(cache=True, error_model="numpy")
-def leg_changes(d, prev, edge_aligned, period, td, invert, ct, cs, et, es):
-    """Changes of one leg's state over a period: times into ``ct``, states into ``cs``.
-
-    The intended timeline comes from comparing the duty with the carrier (centre-aligned:
-    high for ``d T`` centred in the period; edge-aligned: high from the period start);
-    ``invert`` gives the complementary leg of bipolar PWM. Each edge turns the leg off for the
-    dead time first (the incoming switch is delayed). ``prev`` is the leg's intended state at
-    the end of the previous period. Returns ``(count, intended state at the period end,
-    number of edges)``.
-    """
-    hi = LEG_LOW if invert else LEG_HIGH
-    lo = LEG_HIGH if invert else LEG_LOW
-    ne = 0
-    if d >= 1.0:
-        start = hi
-        end = hi
-    elif d <= 0.0:
-        start = lo
-        end = lo
-    elif edge_aligned:
-        start = hi
-        end = lo
-    else:
-        start = lo
-        end = lo
-    if start != prev:
-        et[ne] = 0.0
-        es[ne] = start
-        ne += 1
-    if 0.0 < d < 1.0:
-        if edge_aligned:
-            et[ne] = d * period
-            es[ne] = lo
-            ne += 1
-        else:
-            et[ne] = 0.5 * (1.0 - d) * period
-            es[ne] = hi
-            ne += 1
-            et[ne] = 0.5 * (1.0 + d) * period
-            es[ne] = lo
-            ne += 1
-    n = 0
-    for k in range(ne):
-        nxt = et[k + 1] if k + 1 < ne else period
-        if td > 0.0:
-            ct[n] = et[k]
-            cs[n] = LEG_OFF
-            n += 1
-            if et[k] + td < nxt:
-                ct[n] = et[k] + td
-                cs[n] = es[k]
-                n += 1
-        else:
-            ct[n] = et[k]
-            cs[n] = es[k]
-            n += 1
-    return n, end, ne
+@njit(cache=True, error_model="numpy", inline="always")
+def drive_legs(m):
+    """Legs of the driving diagonal for the sign of the modulation ``m``."""
+    return (LEG_HIGH, LEG_LOW) if m >= 0.0 else (LEG_LOW, LEG_HIGH)
 
 
 @njit(cache=True, error_model="numpy", inline="always")
-def _state_at(tau, start, ct, cs, n, tol):
-    s = start
-    for k in range(n):
-        if ct[k] <= tau + tol:
-            s = cs[k]
-    return s
+def decay_legs(m, fast, q):
+    """Legs of the decay after a pulse of sign ``m``: fast (every switch off, the diodes
+    return the current to the bus; or the opposite diagonal) or slow (both low-side or both
+    high-side switches on: the current recirculates through the armature)."""
+    if fast:
+        if q[Q_FAST_SYNC] > 0.5:
+            return (LEG_LOW, LEG_HIGH) if m >= 0.0 else (LEG_HIGH, LEG_LOW)
+        return LEG_OFF, LEG_OFF
+    if q[Q_SLOW_HIGH] > 0.5:
+        return LEG_HIGH, LEG_HIGH
+    return LEG_LOW, LEG_LOW
+
+
+@njit(cache=True, error_model="numpy", inline="always")
+def _leg_high(tau, d, edge, period):
+    if d >= 1.0:
+        return True
+    if d <= 0.0:
+        return False
+    if edge:
+        return tau < d * period
+    return 0.5 * (1.0 - d) * period <= tau < 0.5 * (1.0 + d) * period
+
+
+@njit(cache=True, error_model="numpy")
+def intended_legs(tau, q, da, db, m, period, fs, ff, fe):
+    """Leg states the modulator asks for at local time ``tau`` (before the dead time).
+
+    Inside the comparator's decay window ``[fs, fe)`` the decay legs (fast before ``ff``);
+    otherwise the PWM scheme: unipolar / bipolar legs from their duties, or drive/decay PWM:
+    the drive diagonal for ``d T`` (from the period start, or centred), then the off-time in
+    fast decay for ``Q_FAST_FRAC`` of it and in slow decay for the rest.
+    """
+    if fs <= tau < fe:
+        return decay_legs(m, tau < ff, q)
+    edge = q[Q_EDGE] > 0.5
+    if q[Q_DECAY] > 0.5:
+        d = da
+        if d >= 1.0:
+            return drive_legs(m)
+        if d <= 0.0:
+            return decay_legs(m, q[Q_FAST_FRAC] >= 1.0, q)
+        if edge:
+            on = tau < d * period
+            u = tau - d * period  # time since the pulse ended
+        else:
+            t_end = 0.5 * (1.0 + d) * period
+            on = 0.5 * (1.0 - d) * period <= tau < t_end
+            u = tau - t_end if tau >= t_end else tau + period - t_end
+        if on:
+            return drive_legs(m)
+        return decay_legs(m, u < q[Q_FAST_FRAC] * (1.0 - d) * period, q)
+    a = _leg_high(tau, da, edge, period)
+    if q[Q_UNIPOLAR] > 0.5:
+        b = _leg_high(tau, db, edge, period)
+    else:
+        b = not a
+    return (LEG_HIGH if a else LEG_LOW), (LEG_HIGH if b else LEG_LOW)
 
 
 @njit(cache=True, error_model="numpy")
@@ -1004,78 +1086,125 @@ def _insert_sorted(bt, nb, t, tol):
     return nb + 1
 
 
-@njit(cache=True, error_model="numpy")
-def build_schedule(q, md, period, n_grid, tau_from, prev_a, prev_b, override_a, override_b,
-                   la_now, lb_now, bt, ba, bb, blim, bgrid, bedges, sched, ssched):  # fmt: skip
-    """Segments of one PWM period (from local time ``tau_from``): breakpoints ``bt`` with the
-    leg states, the peak-limit flag, the grid index (or -1) and the leg edges at each.
+@njit(cache=True, error_model="numpy", inline="always")
+def _state_at(tau, start, ct, cs, n, tol):
+    s = start
+    for k in range(n):
+        if ct[k] <= tau + tol:
+            s = cs[k]
+    return s
 
-    ``override_a >= 0`` builds the rest of a period after the peak limit ended the pulse: the
-    legs go to the override states (through the dead time) from ``tau_from``.
+
+@njit(cache=True, error_model="numpy")
+def _leg_timeline(cand, nc, sl, start, td, period, ct, cs, fl, tol):
+    """Changes of one leg (times ``ct``, states ``cs``) from its intended states ``sl`` on
+    the intervals ``[cand[k], cand[k+1])``, starting from ``start``. A change from one switch
+    to the other turns the leg off for the dead time first (the incoming switch is delayed);
+    a change from or to off is immediate. Every intended change is one switching edge
+    (``fl = 1`` on its first entry). Returns the number of entries."""
+    n = 0
+    cur = start
+    for k in range(nc - 1):
+        s = sl[k]
+        if s == cur:
+            continue
+        t = cand[k]
+        fl[n] = 1
+        # the next intended change of this leg (the dead time cannot outlast it)
+        nxt = period
+        for j in range(k + 1, nc - 1):
+            if sl[j] != s:
+                nxt = cand[j]
+                break
+        if td > 0.0 and cur != LEG_OFF and s != LEG_OFF:
+            ct[n] = t
+            cs[n] = LEG_OFF
+            n += 1
+            if t + td < nxt - tol:
+                ct[n] = t + td
+                cs[n] = s
+                fl[n] = 0
+                n += 1
+        else:
+            ct[n] = t
+            cs[n] = s
+            n += 1
+        cur = s
+    return n
+
+
+@njit(cache=True, error_model="numpy")
+def build_schedule(q, md, period, n_grid, tau_from, start_a, start_b, fs, ff, fe, pulse_t0,
+                   bt, ba, bb, blim, bgrid, bedges, sched, ssched):  # fmt: skip
+    """Segments of one PWM period from local time ``tau_from``: breakpoints ``bt`` with the
+    leg states, the current comparator's flag, the grid index (or -1) and the leg edges at
+    each.
+
+    ``start_a``, ``start_b``: the legs' states at ``tau_from`` (at a period start, the
+    intended states at the end of the previous period). ``[fs, fe)`` (local times, may reach
+    outside the period): the comparator's decay window, fast before ``ff``. ``pulse_t0``:
+    local start time of a drive pulse in progress at ``tau_from`` (for the blanking).
     Returns ``(segments, intended end state of A, of B, modulation)``.
     """
     h = period / n_grid
     tol = 1e-9 * h
-    cta = sched[0]
-    ctb = sched[1]
-    ea = sched[2]  # edge times (for switching energy)
+    cand = sched[0]
+    cta = sched[1]
+    ctb = sched[2]
+    ea = sched[3]  # edge times (for switching energy)
     csa = ssched[0]
     csb = ssched[1]
+    sla = ssched[2]
+    slb = ssched[3]
+    fla = ssched[4]
+    flb = ssched[5]
     td = q[Q_TD]
     da, db, m = modulation(q)
-    nea = 0
-    if override_a >= 0:
-        na = 0
-        nb_ = 0
-        start_a = la_now
-        start_b = lb_now
-        for leg in range(2):
-            now = la_now if leg == 0 else lb_now
-            tgt = override_a if leg == 0 else override_b
-            ct = cta if leg == 0 else ctb
-            cs = csa if leg == 0 else csb
-            n = 0
-            if now != tgt:
-                ea[nea] = tau_from
-                nea += 1
-                if td > 0.0 and now != LEG_OFF:
-                    ct[n] = tau_from
-                    cs[n] = LEG_OFF
-                    n += 1
-                    if tau_from + td < period:
-                        ct[n] = tau_from + td
-                        cs[n] = tgt
-                        n += 1
-                else:
-                    ct[n] = tau_from
-                    cs[n] = tgt
-                    n += 1
-            if leg == 0:
-                na = n
-            else:
-                nb_ = n
-        end_a = override_a
-        end_b = override_b
-    else:
-        bipolar = q[Q_UNIPOLAR] < 0.5
-        edge = q[Q_EDGE] > 0.5
-        et = sched[3]
-        es = ssched[2]
-        na, end_a, _ = leg_changes(da, prev_a, edge, period, td, False, cta, csa, et, es)
-        if bipolar:
-            nb_, end_b, _ = leg_changes(da, prev_b, edge, period, td, True, ctb, csb, et, es)
+    # the instants where the modulator's intended legs may change
+    nc = 0
+    cand[nc] = tau_from
+    nc += 1
+    if q[Q_DECAY] > 0.5:
+        d = da
+        f_off = q[Q_FAST_FRAC] * (1.0 - d) * period
+        if q[Q_EDGE] > 0.5:
+            pts = (d * period, d * period + f_off, -1.0, -1.0)
         else:
-            nb_, end_b, _ = leg_changes(db, prev_b, edge, period, td, False, ctb, csb, et, es)
-        start_a = prev_a
-        start_b = prev_b
-        for k in range(na):
-            if csa[k] == LEG_OFF or td == 0.0:
-                ea[nea] = cta[k]
-                nea += 1
-        for k in range(nb_):
-            if csb[k] == LEG_OFF or td == 0.0:
-                ea[nea] = ctb[k]
-                nea += 1
+            t_end = 0.5 * (1.0 + d) * period
+            pts = (0.5 * (1.0 - d) * period, t_end, t_end + f_off, t_end + f_off - period)
+    elif q[Q_EDGE] > 0.5:
+        pts = (da * period, db * period, -1.0, -1.0)
+    else:
+        pts = (
+            0.5 * (1.0 - da) * period,
+            0.5 * (1.0 + da) * period,
+            0.5 * (1.0 - db) * period,
+            0.5 * (1.0 + db) * period,
+        )
+    for c in pts:
+        if tau_from + tol < c < period - tol:
+            nc = _insert_sorted(cand, nc, c, tol)
+    for c in (fs, ff, fe):
+        if tau_from + tol < c < period - tol:
+            nc = _insert_sorted(cand, nc, c, tol)
+    cand[nc] = period
+    nc += 1
+    for k in range(nc - 1):
+        mid = 0.5 * (cand[k] + cand[k + 1])
+        sla[k], slb[k] = intended_legs(mid, q, da, db, m, period, fs, ff, fe)
+    end_a = sla[nc - 2]
+    end_b = slb[nc - 2]
+    na = _leg_timeline(cand, nc, sla, start_a, td, period, cta, csa, fla, tol)
+    nb_ = _leg_timeline(cand, nc, slb, start_b, td, period, ctb, csb, flb, tol)
+    nea = 0
+    for k in range(na):
+        if fla[k] == 1:
+            ea[nea] = cta[k]
+            nea += 1
+    for k in range(nb_):
+        if flb[k] == 1:
+            ea[nea] = ctb[k]
+            nea += 1
     # breakpoints: the grid from tau_from, the leg changes, the period end
     nbp = 0
     j0 = int(math.floor(tau_from / h + 1e-9))
@@ -1092,21 +1221,25 @@ def build_schedule(q, md, period, n_grid, tau_from, prev_a, prev_b, override_a, 
     for k in range(nb_):
         if ctb[k] >= tau_from - tol:
             nbp = _insert_sorted(bt, nbp, ctb[k], tol)
-    # peak limit: active in the driving state after the blanking time from each pulse start
-    drive_a = LEG_HIGH if m >= 0.0 else LEG_LOW
-    drive_b = LEG_LOW if m >= 0.0 else LEG_HIGH
-    use_limit = q[Q_IPK] > 0.0 and override_a < 0
+    # the comparator: active in the driving state after the blanking time from each pulse
+    # start (a pulse in progress at tau_from keeps its start)
+    drive_a, drive_b = drive_legs(m)
+    use_limit = q[Q_IPK] > 0.0
+    was0 = start_a == drive_a and start_b == drive_b
     if use_limit and q[Q_BLANK] > 0.0:
-        was = False
+        was = was0
+        p0 = pulse_t0
         for k in range(nbp - 1):
             sa = _state_at(bt[k], start_a, cta, csa, na, tol)
             sb = _state_at(bt[k], start_b, ctb, csb, nb_, tol)
             drv = sa == drive_a and sb == drive_b
-            if drv and not was and bt[k] + q[Q_BLANK] < period - tol:
-                nbp = _insert_sorted(bt, nbp, bt[k] + q[Q_BLANK], tol)
+            if drv and not was:
+                p0 = bt[k]
+            if drv and tau_from - tol <= p0 + q[Q_BLANK] < period - tol:
+                nbp = _insert_sorted(bt, nbp, p0 + q[Q_BLANK], tol)
             was = drv
-    pulse_start = -1.0
-    was = False
+    pulse_start = pulse_t0 if was0 else -math.inf
+    was = was0
     for k in range(nbp):
         sa = _state_at(bt[k], start_a, cta, csa, na, tol)
         sb = _state_at(bt[k], start_b, ctb, csb, nb_, tol)
@@ -1191,6 +1324,7 @@ def write_row(x, md, q, forms, fsc, t, rec, row, acc, limit_flag, work):
     rec[R_SOC, row] = x[S_SOC]
     rec[R_LIMIT, row] = limit_flag
     rec[R_ENABLED, row] = 1.0 if bridge_enabled(md) else 0.0
+    rec[R_SENSED, row] = fsc[C_SGAIN] * i
 
 
 @njit(cache=True, error_model="numpy")
@@ -1215,6 +1349,68 @@ def apply_event(x, md, q, index, value, acc, trips, t):
             x[S_W], lost = inertia_change(w, q[Q_J], value)
             acc[A_COUPLING] += lost
         q[index] = value
+
+
+@njit(cache=True, error_model="numpy", inline="always")
+def next_timer(md, q, acc):
+    """Time of the next timed action: the comparator's decay start or end, the end of an
+    over-current deglitch (inf: none)."""
+    t = acc[A_CHOP_AT] if md[M_CHOP] != 0 else math.inf
+    if md[M_OCP] == 1 or md[M_OCP] == -1:
+        t = min(t, acc[A_OCP_SINCE] + q[Q_OCP_DG])
+    return t
+
+
+@njit(cache=True, error_model="numpy")
+def begin_decay(x, md, q, t, t_p, period, acc, chops):
+    """The comparator's decay starts at ``t``: for the fixed off-time, or to the end of the
+    PWM period (cycle-by-cycle); fast for ``Q_FAST_FRAC`` of it. Logged with the current."""
+    md[M_CHOP] = 2
+    fixed = q[Q_CHOP_FIXED] > 0.5
+    end = t + q[Q_TOFF] if fixed else t_p + period
+    acc[A_FORCE_START] = t
+    acc[A_FORCE_FAST] = t + q[Q_FAST_FRAC] * (end - t)
+    acc[A_FORCE_END] = end
+    acc[A_CHOP_AT] = end if fixed else math.inf
+    acc[A_LIMIT_EVENTS] += 1.0
+    n = int(chops[0, 0])
+    if n < MAX_CHOPS:
+        chops[1 + n, 0] = t
+        chops[1 + n, 1] = x[S_I]
+        chops[1 + n, 2] = math.nan
+        chops[1 + n, 3] = math.nan
+        chops[0, 0] = n + 1
+
+
+@njit(cache=True, error_model="numpy")
+def end_decay(x, md, acc, chops, t):
+    """The comparator's decay ends at ``t`` (the legs follow the modulator again)."""
+    md[M_CHOP] = 0
+    acc[A_FORCE_START] = -math.inf
+    acc[A_FORCE_FAST] = -math.inf
+    acc[A_FORCE_END] = -math.inf
+    acc[A_CHOP_AT] = math.inf
+    n = int(chops[0, 0])
+    if n > 0 and math.isnan(chops[n, 2]):
+        chops[n, 2] = t
+        chops[n, 3] = x[S_I]
+
+
+@njit(cache=True, error_model="numpy")
+def fire_timers(x, md, q, t, t_p, period, acc, trips, chops):
+    """Do the timed actions due at ``t``; returns 0 (none), 1 (the modes changed: an
+    over-current trip) or 2 (the legs' schedule must be rebuilt from ``t``)."""
+    tol = 1e-12 * period
+    if (md[M_OCP] == 1 or md[M_OCP] == -1) and t >= acc[A_OCP_SINCE] + q[Q_OCP_DG] - tol:
+        trip_bridge(md, acc, trips, t, TRIP_OVER_CURRENT, x[S_I])
+        return 1
+    if md[M_CHOP] == 1 and t >= acc[A_CHOP_AT] - tol:
+        begin_decay(x, md, q, t, t_p, period, acc, chops)
+        return 2
+    if md[M_CHOP] == 2 and t >= acc[A_CHOP_AT] - tol:
+        end_decay(x, md, acc, chops, t)
+        return 2
+    return 0
 
 
 @njit(cache=True, error_model="numpy")
@@ -1267,6 +1463,11 @@ def start_run(x, md, q, ev_t, ev_i, ev_v, counters, rec, acc, trips, ocv_soc, oc
     acc[A_BUS_MIN] = work[0, 11]
     acc[A_PEAK_I] = abs(x[S_I])
     acc[A_FUSE_MELT_TIME] = -1.0
+    acc[A_FORCE_START] = -math.inf
+    acc[A_FORCE_FAST] = -math.inf
+    acc[A_FORCE_END] = -math.inf
+    acc[A_CHOP_AT] = math.inf
+    acc[A_PULSE_T0] = -math.inf
     acc[A_BYPASS_TIME] = -1.0 if md[M_PRE] == 1 else 0.0
     write_row(x, md, q, forms, fsc, 0.0, rec, 0, acc, 0.0, work)
     if n_cp > 0:
@@ -1279,7 +1480,7 @@ def start_run(x, md, q, ev_t, ev_i, ev_v, counters, rec, acc, trips, ocv_soc, oc
 
 @njit(cache=True, error_model="numpy")
 def run_periods(x, md, q, period, n_grid, n_sub, duration, p_first, p_last, ev_t, ev_i, ev_v,
-                counters, rec, acc, trips, ocv_soc, ocv_v, legs, cache_key, cache_tau,
+                counters, rec, acc, trips, chops, ocv_soc, ocv_v, legs, cache_key, cache_tau,
                 cache_gen, cache_e, n_cp, cp, cs, rng, segs, crec):  # fmt: skip
     """Advance the run over periods ``p_first .. p_last`` (0-based) of length ``period``.
 
@@ -1305,8 +1506,8 @@ def run_periods(x, md, q, period, n_grid, n_sub, duration, p_first, p_last, ev_t
     fcache_sc = np.zeros((FORM_SLOTS, N_C))
     fcache_key = np.full(FORM_SLOTS, -1, dtype=np.int64)
     fcache_gen = np.zeros(FORM_SLOTS, dtype=np.int64)
-    sched = np.zeros((5, 8))
-    ssched = np.zeros((4, 8), dtype=np.int64)
+    sched = np.zeros((4, 32))
+    ssched = np.zeros((6, 32), dtype=np.int64)
     carry = np.zeros(1, dtype=np.int64)
     genbox = np.zeros(1, dtype=np.int64)
     genbox[0] = counters[3]
@@ -1336,6 +1537,16 @@ def run_periods(x, md, q, period, n_grid, n_sub, duration, p_first, p_last, ev_t
         # auto-restart after a trip, checked at each period start
         if (
             md[M_TRIP] == 1
+            and md[M_OCP] == 2
+            and q[Q_OCP_RETRY] > 0.5
+            and t_p >= acc[A_TRIP_TIME] + q[Q_OCP_RT] * (1.0 - 1e-12)
+        ):
+            md[M_TRIP] = 0
+            md[M_OCP] = 0
+            log_trip(trips, acc, t_p, TRIP_RESTART, _dot(forms[F_VN], x))
+        if (
+            md[M_TRIP] == 1
+            and md[M_OCP] != 2
             and q[Q_AUTO_RESTART] > 0.5
             and t_p >= acc[A_TRIP_TIME] + q[Q_RESTART_DELAY] * (1.0 - 1e-12)
         ):
@@ -1345,12 +1556,15 @@ def run_periods(x, md, q, period, n_grid, n_sub, duration, p_first, p_last, ev_t
             if lo_ok and hi_ok:
                 md[M_TRIP] = 0
                 log_trip(trips, acc, t_p, TRIP_RESTART, vn)
+        if md[M_CHOP] == 2 and q[Q_CHOP_FIXED] < 0.5:
+            end_decay(x, md, acc, chops, t_p)  # cycle-by-cycle: the decay ends with the period
         enabled = bridge_enabled(md)
         if switching:
             if enabled:
                 nseg, end_a, end_b, m = build_schedule(
-                    q, md, period, n_grid, 0.0, legs[0], legs[1], -1, -1, md[M_LEG_A],
-                    md[M_LEG_B], bt, ba, bb, blim, bgrid, bedges, sched, ssched,
+                    q, md, period, n_grid, 0.0, legs[0], legs[1], acc[A_FORCE_START] - t_p,
+                    acc[A_FORCE_FAST] - t_p, acc[A_FORCE_END] - t_p, acc[A_PULSE_T0] - t_p,
+                    bt, ba, bb, blim, bgrid, bedges, sched, ssched,
                 )  # fmt: skip
                 q[Q_MOD] = m
             else:
@@ -1362,7 +1576,6 @@ def run_periods(x, md, q, period, n_grid, n_sub, duration, p_first, p_last, ev_t
             nseg = grid_schedule(n_grid, period, LEG_AVG, bt, ba, bb, blim, bgrid, bedges)
             end_a = LEG_AVG
             end_b = LEG_AVG
-        limited_now = False
         k = 0
         while k < nseg:
             tau0 = bt[k]
@@ -1377,12 +1590,15 @@ def run_periods(x, md, q, period, n_grid, n_sub, duration, p_first, p_last, ev_t
             else:
                 la, lb = LEG_OFF, LEG_OFF
             if la != md[M_LEG_A] or lb != md[M_LEG_B]:
+                dra, drb = drive_legs(q[Q_MOD])
+                if la == dra and lb == drb:
+                    acc[A_PULSE_T0] = t0  # a drive pulse starts (for blanking, min on-time)
                 md[M_LEG_A] = la
                 md[M_LEG_B] = lb
                 carry[0] = 0
                 # the forms of the new leg states, from a small cache (they repeat every
                 # period); the other modes are still right if every guard holds at x
-                fk = mode_key(md) * 4 + md[M_TRIP] * 2 + md[M_MELTED]
+                fk = ((mode_key(md) * 4 + md[M_OCP] + 1) * 2 + md[M_TRIP]) * 2 + md[M_MELTED]
                 fs_ = fk & (FORM_SLOTS - 1)
                 # (averaged legs depend on the modulation, which a closed loop changes)
                 if fcache_key[fs_] == fk and fcache_gen[fs_] == genbox[0] and la != LEG_AVG:
@@ -1408,12 +1624,18 @@ def run_periods(x, md, q, period, n_grid, n_sub, duration, p_first, p_last, ev_t
                     elif st != STATUS_OK:
                         status = st
                         break
-            lim = blim[k] == 1 and bridge_enabled(md) and not limited_now
+            lim = blim[k] == 1 and bridge_enabled(md) and md[M_CHOP] == 0
             t = t0
             hit_limit = False
+            rebuild = False
             while True:
                 at_event = k_ev < n_ev and ev_t[k_ev] <= t1
                 target = ev_t[k_ev] if at_event else t1
+                t_tm = next_timer(md, q, acc)
+                at_timer = t_tm <= target
+                if at_timer:
+                    target = max(t_tm, t)
+                    at_event = at_event and ev_t[k_ev] <= target
                 if target > t:
                     # local lengths (not t differences) so that a period's segments repeat
                     tau = tau1 - tau0 if (t == t0 and target == t_p + tau1) else target - t
@@ -1463,6 +1685,24 @@ def run_periods(x, md, q, period, n_grid, n_sub, duration, p_first, p_last, ev_t
                         status = st
                         break
                     t = target
+                if at_timer:
+                    act = fire_timers(x, md, q, t, t_p, period, acc, trips, chops)
+                    carry[0] = 0
+                    if act == 2:
+                        rebuild = True
+                        break
+                    if act == 1:
+                        st = update_modes(x, md, q, forms, fsc, t, acc, trips, ocv_soc, ocv_v)
+                        if st == -1:
+                            genbox[0] += 1
+                        elif st != STATUS_OK:
+                            status = st
+                            break
+                        lim = lim and bridge_enabled(md)
+                    if not at_event:
+                        if t >= t1:
+                            break
+                        continue
                 if not at_event:
                     break
                 while k_ev < n_ev and ev_t[k_ev] == target:
@@ -1483,24 +1723,23 @@ def run_periods(x, md, q, period, n_grid, n_sub, duration, p_first, p_last, ev_t
             if status != STATUS_OK:
                 break
             if hit_limit:
-                # the comparator ends the pulse: legs to their off state for the rest of the
-                # period (bipolar: the opposite diagonal; unipolar: both low, the current
-                # recirculates)
-                acc[A_LIMIT_EVENTS] += 1.0
-                limited_now = True
-                if q[Q_UNIPOLAR] > 0.5:
-                    oa, ob = LEG_LOW, LEG_LOW
-                elif q[Q_MOD] >= 0.0:
-                    oa, ob = LEG_LOW, LEG_HIGH
-                else:
-                    oa, ob = LEG_HIGH, LEG_LOW
+                # the comparator trips: the switches turn off after its delay (and not before
+                # the minimum on-time), then the legs decay for the off-time or the rest of
+                # the period (cycle-by-cycle: unipolar PWM recirculates through both low-side
+                # switches, bipolar turns on the opposite diagonal; decay PWM: its decay mode)
+                md[M_CHOP] = 1
+                acc[A_CHOP_AT] = max(t + q[Q_TCD], acc[A_PULSE_T0] + q[Q_TONMIN])
+                if acc[A_CHOP_AT] <= t + 1e-12 * period:
+                    begin_decay(x, md, q, t, t_p, period, acc, chops)
+                rebuild = True
+            if rebuild:
                 tau_now = t - t_p
                 nseg, end_a, end_b, m = build_schedule(
-                    q, md, period, n_grid, tau_now, legs[0], legs[1], oa, ob, md[M_LEG_A],
-                    md[M_LEG_B], bt, ba, bb, blim, bgrid, bedges, sched, ssched,
+                    q, md, period, n_grid, tau_now, md[M_LEG_A], md[M_LEG_B],
+                    acc[A_FORCE_START] - t_p, acc[A_FORCE_FAST] - t_p, acc[A_FORCE_END] - t_p,
+                    acc[A_PULSE_T0] - t_p, bt, ba, bb, blim, bgrid, bedges, sched, ssched,
                 )  # fmt: skip
                 k = 0
-                md[M_LIMITED] = 1
                 continue
             at_end = t1 >= duration * (1.0 - 1e-15)
             if n_cp > 0 and k == nseg - 1 and (p + 1) % n_cp == 0 and not at_end:
@@ -1529,14 +1768,14 @@ def run_periods(x, md, q, period, n_grid, n_sub, duration, p_first, p_last, ev_t
             jg = bgrid[k + 1]
             if (jg >= 0 and (p * n_grid + jg) % n_sub == 0) or at_end:
                 if row < rec.shape[1]:
-                    write_row(x, md, q, forms, fsc, t1, rec, row, acc, 1.0 * md[M_LIMITED], rowwork)
+                    flag = 1.0 if md[M_CHOP] == 2 else 0.0
+                    write_row(x, md, q, forms, fsc, t1, rec, row, acc, flag, rowwork)
                     if n_cp > 0:
                         copy_record(cs, crec, row)
                     row += 1
             if at_end:
                 break
             k += 1
-        md[M_LIMITED] = 0
         legs[0] = end_a
         legs[1] = end_b
         if status != STATUS_OK:

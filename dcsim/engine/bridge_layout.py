@@ -71,7 +71,21 @@ Q_PRE_V = 46  # bypass when the bus reaches this voltage [V] (inf: by time only)
 Q_FUSE = 47  # 1 with a fuse in the supply line
 Q_FUSE_IMIN = 48  # minimum melting current [A]
 Q_FUSE_TAU = 49  # heating time constant [s]
-N_Q = 50
+Q_DECAY = 50  # 1: drive/decay PWM (one diagonal drives, the off-time decays), 0: Q_UNIPOLAR
+Q_SLOW_HIGH = 51  # 1: slow decay on the high-side switches, 0: low-side
+Q_FAST_SYNC = 52  # 1: fast decay through the opposite diagonal, 0: through the diodes
+Q_FAST_FRAC = 53  # fraction of an off-time in fast decay (then slow) [-]
+Q_CHOP_FIXED = 54  # 1: fixed-off-time regulation, 0: cycle-by-cycle
+Q_TOFF = 55  # fixed off-time [s]
+Q_TCD = 56  # comparator delay [s]
+Q_TONMIN = 57  # minimum on-time after a pulse starts [s]
+Q_SENSE_BUS = 58  # 1: the sense resistor sees the bus current g i (low/high side), 0: i
+Q_RSENSE = 59  # sense resistance [ohm]
+Q_OCP = 60  # over-current trip level of the sensed current [A] (0: none)
+Q_OCP_DG = 61  # deglitch time [s]
+Q_OCP_RETRY = 62  # 1: retry after Q_OCP_RT, 0: latch
+Q_OCP_RT = 63  # retry time [s]
+N_Q = 64
 
 # Discrete modes (int64)
 M_STUCK = 0  # shaft held at zero speed
@@ -85,8 +99,10 @@ M_BRAKE = 7  # brake chopper on
 M_PRE = 8  # pre-charge resistor in circuit (bridge disabled)
 M_TRIP = 9  # tripped (bridge disabled)
 M_SEG = 10  # battery table segment
-M_LIMITED = 11  # pulse ended by the peak current limit for the rest of the period
-N_M = 12
+M_CHOP = 11  # current comparator: 0 idle, 1 tripped (decay pending), 2 decaying
+M_OCP = 12  # over-current: 0 below, +-1 above (deglitch running, sign of the sensed current),
+#             2 tripped
+N_M = 13
 
 LEG_OFF = 0  # both switches of the leg off (its diodes conduct, or nothing)
 LEG_LOW = 1
@@ -122,7 +138,14 @@ A_TRIP_TIME = 24  # time of the last trip [s]
 A_BYPASS_TIME = 25  # when the pre-charge resistor was bypassed [s] (-1: not yet)
 A_CACHE_MISSES = 26
 A_PERIODS = 27
-N_ACC = 28
+A_CHOP_AT = 28  # time of the comparator's next action (decay start or end) [s]
+A_FORCE_START = 29  # the comparator's decay window: start, end of its fast part, end [s]
+A_FORCE_FAST = 30
+A_FORCE_END = 31
+A_PULSE_T0 = 32  # when the present drive pulse started [s]
+A_OCP_SINCE = 33  # when the sensed current rose above the over-current level [s]
+A_SENSE = 34  # energy in the current-sense resistor [J]
+N_ACC = 35
 
 # Trace columns
 R_TIME = 0
@@ -145,7 +168,8 @@ R_FUSE_HEAT = 16
 R_SOC = 17
 R_LIMIT = 18
 R_ENABLED = 19
-N_REC = 20
+R_SENSED = 20
+N_REC = 21
 
 RECORD_NAMES = layout.RECORD_NAMES + (
     "duty",
@@ -157,6 +181,7 @@ RECORD_NAMES = layout.RECORD_NAMES + (
     "state_of_charge",
     "current_limit_active",
     "bridge_enabled",
+    "sensed_current_A",
 )
 """The core kernel's columns (same order, same meaning), then the power stage's."""
 
@@ -167,7 +192,9 @@ TRIP_RESTART = 3
 TRIP_FUSE = 4
 TRIP_BYPASS = 5
 TRIP_BUS_COLLAPSE = 6
+TRIP_OVER_CURRENT = 7
 MAX_TRIPS = 256
+MAX_CHOPS = 100_000  # rows of the comparator's log: decay start, current there, end, current
 
 # Special event indices (negative: actions rather than parameters)
 EV_SOURCE_VOLTAGE = -1  # set the source voltage state [V] (and the slope to 0)

@@ -234,12 +234,12 @@ def _simulate_bridge(
     from dcsim.engine.run_bridge import bridge_summary, run_bridge_inputs, stop_message
 
     bi = assemble_bridge(scenario)
-    status, t_stop, rec, acc, xf, qf, trips, crec = run_bridge_inputs(bi, progress)
+    status, t_stop, rec, acc, xf, qf, trips, crec, chops = run_bridge_inputs(bi, progress)
     if status != B.STATUS_OK:
         raise SimulationError(stop_message(scenario.source, status, t_stop))
     columns = {name: rec[k] for k, name in enumerate(B.RECORD_NAMES)}
     columns.update(control_columns(scenario, crec))
-    summary = bridge_summary(scenario, bi, acc, xf, qf, trips)
+    summary = bridge_summary(scenario, bi, acc, xf, qf, trips, chops)
     if bi.periods_per_sample:
         summary.update(control_summary(scenario, columns, bi.controller.sample_s))
     return SimulationResult(
@@ -249,4 +249,5 @@ def _simulate_bridge(
         step_s=bi.step_s,
         record_interval_s=bi.record_interval_s,
         event_times_s=tuple(sorted({float(t) for t in bi.event_time_s})),
+        chops=chops,
     )

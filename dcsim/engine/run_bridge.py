@@ -21,14 +21,18 @@ TRIP_NAMES = {
     B.TRIP_FUSE: "fuse_melted",
     B.TRIP_BYPASS: "precharge_bypassed",
     B.TRIP_BUS_COLLAPSE: "bus_collapsed",
+    B.TRIP_OVER_CURRENT: "over_current",
 }
 
 
 def run_bridge_inputs(bi: BridgeInputs, progress: Callable[[float], None] | None = None):
-    """Run the bridge kernel; returns ``(status, t_stop, rec, acc, x, q, trips)``."""
+    """Run the bridge kernel; returns ``(status, t_stop, rec, acc, x, q, trips, crec, chops)``
+    (``chops``: one row per decay of the current comparator: its start [s], the current
+    there [A], its end [s] and the current there [A]; NaN while unfinished)."""
     rec = np.zeros((B.N_REC, bi.rows))
     acc = np.zeros(B.N_ACC)
     trips = np.zeros((B.MAX_TRIPS + 1, 3))
+    chops = np.zeros((B.MAX_CHOPS + 1, 4))
     q = bi.params.copy()
     x = bi.state0.copy()
     md = bi.modes0.copy()
@@ -52,7 +56,7 @@ def run_bridge_inputs(bi: BridgeInputs, progress: Callable[[float], None] | None
         p_last = min(p_first + per_chunk, bi.n_periods) - 1
         status, t_stop = run_periods(
             x, md, q, bi.period_s, bi.n_grid, bi.steps_per_row, bi.duration_s, p_first,
-            p_last, *ev, counters, rec, acc, trips, bi.ocv_soc, bi.ocv_V, legs, *cache,
+            p_last, *ev, counters, rec, acc, trips, chops, bi.ocv_soc, bi.ocv_V, legs, *cache,
             n_cp, *ctl, crec,
         )  # fmt: skip
         if progress is not None:
@@ -60,7 +64,9 @@ def run_bridge_inputs(bi: BridgeInputs, progress: Callable[[float], None] | None
         if status != B.STATUS_OK:
             break
     n = counters[1]
-    return int(status), float(t_stop), rec[:, :n], acc, x, q, trips, crec[:, :n]
+    n_chops = int(chops[0, 0])
+    chop_log = chops[1 : 1 + n_chops].copy()
+    return int(status), float(t_stop), rec[:, :n], acc, x, q, trips, crec[:, :n], chop_log
 
 
 def stop_message(source: str, status: int, t_stop: float) -> str:
@@ -96,6 +102,7 @@ def bridge_energy_account(bi: BridgeInputs, acc, xf, qf) -> dict[str, float]:
         "energy_to_brake_resistor_J": float(acc[B.A_BRAKE]),
         "energy_capacitor_esr_J": float(acc[B.A_ESR]),
         "energy_precharge_loss_J": float(acc[B.A_PRECHARGE]),
+        "energy_current_sense_J": float(acc[B.A_SENSE]),
         "energy_fuse_arc_J": float(acc[B.A_FUSE_ARC]),
         "kinetic_energy_change_J": float(kinetic),
         "stored_energy_change_J": float(stored),
@@ -103,7 +110,28 @@ def bridge_energy_account(bi: BridgeInputs, acc, xf, qf) -> dict[str, float]:
     return with_residual(terms)
 
 
-def bridge_summary(sc, bi: BridgeInputs, acc, xf, qf, trips) -> dict:
+def chop_summary(chops: np.ndarray) -> dict:
+    """Figures of the current comparator's decays (rows as in :func:`run_bridge_inputs`):
+    the largest current at a decay start, the smallest at a decay end, and the last complete
+    chop's peak, valley and period (from the last two decay starts)."""
+    if chops.shape[0] == 0:
+        return {}
+    done = chops[~np.isnan(chops[:, 2])]
+    out = {
+        "chop_peak_max_A": float(np.max(np.abs(chops[:, 1]))),
+        "last_chop_peak_A": float(chops[-1, 1]),
+    }
+    if done.shape[0]:
+        out["chop_valley_min_A"] = float(np.min(np.abs(done[:, 3])))
+        out["last_chop_valley_A"] = float(done[-1, 3])
+    if chops.shape[0] >= 2:
+        period = float(chops[-1, 0] - chops[-2, 0])
+        out["last_chop_period_s"] = period
+        out["last_chop_frequency_Hz"] = 1.0 / period if period > 0.0 else None
+    return out
+
+
+def bridge_summary(sc, bi: BridgeInputs, acc, xf, qf, trips, chops=None) -> dict:
     """The summary of a bridge-model run (SI numbers; ``trips`` a list of dicts)."""
     summary: dict = {
         "peak_current_A": float(acc[B.A_PEAK_I]),
@@ -118,11 +146,11 @@ def bridge_summary(sc, bi: BridgeInputs, acc, xf, qf, trips) -> dict:
     summary.update(bridge_energy_account(bi, acc, xf, qf))
     check_finite_totals(sc.source, summary)
     n = int(trips[0, 0])
-    log = [
-        {"time_s": float(trips[1 + k, 0]), "kind": TRIP_NAMES[int(trips[1 + k, 1])],
-         "bus_voltage_V": float(trips[1 + k, 2])}
-        for k in range(n)
-    ]  # fmt: skip
+    log = []
+    for k in range(n):
+        kind = TRIP_NAMES[int(trips[1 + k, 1])]
+        value = "current_A" if kind == "over_current" else "bus_voltage_V"
+        log.append({"time_s": float(trips[1 + k, 0]), "kind": kind, value: float(trips[1 + k, 2])})
     summary.update(
         {
             "bridge_model": sc.bridge.model,
@@ -130,7 +158,9 @@ def bridge_summary(sc, bi: BridgeInputs, acc, xf, qf, trips) -> dict:
             "current_limit_events": int(acc[B.A_LIMIT_EVENTS]),
             "switching_events": int(acc[B.A_SWITCHINGS]),
             "trips": [
-                e for e in log if e["kind"] in ("over_voltage", "under_voltage", "bus_collapsed")
+                e
+                for e in log
+                if e["kind"] in ("over_voltage", "under_voltage", "bus_collapsed", "over_current")
             ],
             "restarts": [e for e in log if e["kind"] == "restart"],
             "fuse_melted": bool(acc[B.A_FUSE_MELT_TIME] >= 0.0),
@@ -140,6 +170,8 @@ def bridge_summary(sc, bi: BridgeInputs, acc, xf, qf, trips) -> dict:
             "peak_fuse_heat_fraction": float(acc[B.A_FUSE_PEAK]) if sc.fuse is not None else None,
         }
     )
+    if chops is not None:
+        summary.update(chop_summary(chops))
     if sc.battery is not None:
         summary["initial_state_of_charge"] = float(bi.state0[B.S_SOC])
         summary["final_state_of_charge"] = float(xf[B.S_SOC])

@@ -39,6 +39,7 @@ _ENERGY_LABELS = {
     "energy_to_brake_resistor_J": "to the brake resistor",
     "energy_capacitor_esr_J": "bus capacitor ESR loss",
     "energy_precharge_loss_J": "pre-charge resistor loss",
+    "energy_current_sense_J": "current-sense resistor loss",
     "energy_fuse_arc_J": "supply inductance energy at fuse opening",
 }
 

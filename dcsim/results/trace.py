@@ -126,6 +126,9 @@ class SimulationResult:
         Spacing of trace rows [s].
     event_times_s : tuple of float
         Times at which scenario events were applied [s].
+    chops : numpy.ndarray
+        The current comparator's decays (switching bridge), one row each: start [s], current
+        there [A], end [s], current there [A] (NaN while unfinished); shape ``(n, 4)``.
     """
 
     scenario: Scenario
@@ -134,3 +137,4 @@ class SimulationResult:
     step_s: float
     record_interval_s: float
     event_times_s: tuple[float, ...] = field(default_factory=tuple)
+    chops: np.ndarray = field(default_factory=lambda: np.zeros((0, 4)))

@@ -1232,6 +1232,9 @@ def _power_stage_problem(
             "averaged model has no pulses to end), found bridge.model "
             f"{show('bridge.model')}",
         )
+    problem = _driver_problem(state, given, show)
+    if problem is not None:
+        return problem
     if "brake" in present and not state["brake.off_voltage"] < state["brake.on_voltage"]:
         return (
             "brake.off_voltage",
@@ -1240,10 +1243,11 @@ def _power_stage_problem(
         )
     if "protection" in present:
         ov, uv = state["protection.over_voltage"], state["protection.under_voltage"]
-        if ov == 0.0 and uv == 0.0:
+        if ov == 0.0 and uv == 0.0 and state["protection.over_current"] == 0.0:
             return (
                 "protection.over_voltage",
-                "expected over_voltage or under_voltage (or both) in [protection], found neither",
+                "expected over_voltage, under_voltage or over_current in [protection], found "
+                "none of them",
             )
         if ov > 0.0 and uv > 0.0 and not uv < ov:
             return (
@@ -1279,6 +1283,94 @@ def _power_stage_problem(
             f"expected a state of charge from 0 to 1, found "
             f"{show('battery.initial_state_of_charge')}",
         )
+    return None
+
+
+def _driver_problem(state: dict[str, Any], given: set[str], show: _Show) -> _Problem:
+    """Rules of the decay modes, the current-sense comparator and its regulation."""
+    model = state["bridge.model"]
+    decay = state["bridge.decay"]
+    if decay is not None:
+        if model != "switching":
+            return (
+                "bridge.decay",
+                "expected bridge.model = 'switching' for a decay mode (the decay happens "
+                f"within each PWM period), found bridge.model {show('bridge.model')}",
+            )
+        if "bridge.pwm" in given:
+            return (
+                "bridge.pwm",
+                "expected either bridge.pwm or bridge.decay (a decay mode is its own PWM "
+                f"scheme: one diagonal drives, the off-time decays), found both: "
+                f"bridge.pwm {show('bridge.pwm')}, bridge.decay {show('bridge.decay')}",
+            )
+    frac = state["bridge.fast_decay_fraction"]
+    if not 0.0 <= frac <= 1.0:
+        return (
+            "bridge.fast_decay_fraction",
+            f"expected a fraction from 0 to 1, found {show('bridge.fast_decay_fraction')}",
+        )
+    for key in ("bridge.slow_decay", "bridge.fast_decay", "bridge.fast_decay_fraction"):
+        if key in given and decay is None:
+            return (
+                key,
+                f"expected bridge.decay ('slow', 'fast' or 'mixed') with {key}, found no "
+                "bridge.decay",
+            )
+    vth, rs = state["bridge.sense_threshold"], state["bridge.sense_resistance"]
+    if vth > 0.0 and not rs > 0.0:
+        return (
+            "bridge.sense_resistance",
+            "expected a sense resistance greater than 0 with bridge.sense_threshold (the trip "
+            f"current is threshold / resistance), found {show('bridge.sense_resistance')}",
+        )
+    if vth > 0.0 and state["bridge.peak_current_limit"] > 0.0:
+        return (
+            "bridge.sense_threshold",
+            "expected either bridge.peak_current_limit or bridge.sense_threshold (both set "
+            f"the trip current), found both: {show('bridge.peak_current_limit')} and "
+            f"{show('bridge.sense_threshold')}",
+        )
+    if "bridge.sense_location" in given and not rs > 0.0:
+        if state["protection.over_current"] == 0.0 and vth == 0.0:
+            return (
+                "bridge.sense_location",
+                "expected bridge.sense_resistance (or a comparator that uses the sensed "
+                "current) with bridge.sense_location, found neither",
+            )
+    trip = vth / rs if vth > 0.0 else state["bridge.peak_current_limit"]
+    if vth > 0.0 and model != "switching":
+        return (
+            "bridge.sense_threshold",
+            "expected bridge.model = 'switching' for the current comparator (the averaged "
+            f"model has no pulses to end), found bridge.model {show('bridge.model')}",
+        )
+    fixed = state["bridge.current_regulation"] == "fixed-off-time"
+    for key in ("bridge.comparator_delay", "bridge.min_on_time", "bridge.current_regulation"):
+        if key in given and trip == 0.0:
+            return (
+                key,
+                f"expected a trip current (bridge.peak_current_limit, or "
+                f"bridge.sense_threshold with bridge.sense_resistance) with {key}, found none",
+            )
+    if fixed and state["bridge.off_time"] is None:
+        return (
+            "bridge.off_time",
+            "expected an off-time with bridge.current_regulation = 'fixed-off-time', found none",
+        )
+    if state["bridge.off_time"] is not None and not fixed:
+        return (
+            "bridge.off_time",
+            "expected bridge.current_regulation = 'fixed-off-time' with bridge.off_time, found "
+            f"bridge.current_regulation {show('bridge.current_regulation')}",
+        )
+    period = 1.0 / state["bridge.frequency"]
+    for key in ("bridge.comparator_delay", "bridge.min_on_time"):
+        if state[key] >= period:
+            return (
+                key,
+                f"expected a time shorter than the PWM period ({period:.3g} s), found {show(key)}",
+            )
     return None
 
 

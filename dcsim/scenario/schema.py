@@ -260,6 +260,21 @@ KEYS: dict[str, dict[str, KeySpec]] = {
         "switching_energy_current": _q("A", "a current", "10 A", default=0.0),
         "peak_current_limit": _q("A", "a current", "15 A", default=0.0),
         "blanking_time": _q("s", "a time", "1 us", default=0.0),
+        "decay": _choice(None, "a decay mode", ("slow", "fast", "mixed")),
+        "slow_decay": _choice("low-side", "a slow-decay path", ("low-side", "high-side")),
+        "fast_decay": _choice("diodes", "a fast-decay path", ("diodes", "synchronous")),
+        "fast_decay_fraction": _q("", "a fraction from 0 to 1", "0.3", default=0.5),
+        "current_regulation": _choice(
+            "cycle-by-cycle", "a current regulation", ("cycle-by-cycle", "fixed-off-time")
+        ),
+        "sense_resistance": _q("ohm", "a resistance", "50 mohm", default=0.0),
+        "sense_threshold": _q("V", "a voltage", "0.5 V", default=0.0),
+        "sense_location": _choice(
+            "in-line", "a sense location", ("in-line", "low-side", "high-side")
+        ),
+        "off_time": _q("s", "a time", "25 us", default=None, constraint="positive"),
+        "comparator_delay": _q("s", "a time", "300 ns", default=0.0),
+        "min_on_time": _q("s", "a time", "1 us", default=0.0),
     },
     "brake": {
         "resistance": _q("ohm", "a resistance", "10 ohm", constraint="positive"),
@@ -272,6 +287,10 @@ KEYS: dict[str, dict[str, KeySpec]] = {
         "restart": _choice("latch", "a restart rule", ("latch", "auto")),
         "restart_delay": _q("s", "a time", "100 ms", default=0.1),
         "restart_margin": _q("V", "a voltage", "1 V", default=0.0),
+        "over_current": _q("A", "a current", "20 A", default=0.0),
+        "over_current_deglitch": _q("s", "a time", "2 us", default=0.0),
+        "over_current_action": _choice("latch", "an over-current action", ("latch", "retry")),
+        "over_current_retry_time": _q("s", "a time", "5 ms", default=0.01, constraint="positive"),
     },
     "precharge": {
         "resistance": _q("ohm", "a resistance", "47 ohm", constraint="positive"),
@@ -715,6 +734,38 @@ class Bridge:
         (0: none; switching model only).
     blanking_time : float
         Time after each pulse starts during which the limit comparator is ignored [s].
+    decay : str or None
+        Drive/decay PWM (switching model only; replaces ``pwm``): in each period one diagonal
+        drives for the duty, and the off-time recirculates the current in ``"slow"`` decay
+        (both low-side or both high-side switches on), returns it to the bus in ``"fast"``
+        decay (the diodes, or the opposite diagonal), or ``"mixed"``: fast for
+        ``fast_decay_fraction`` of the off-time, then slow. None: the ``pwm`` scheme.
+    slow_decay : str
+        ``"low-side"`` or ``"high-side"`` switches for slow decay.
+    fast_decay : str
+        ``"diodes"`` (every switch off: the current stops at zero) or ``"synchronous"`` (the
+        opposite diagonal on: the current may reverse).
+    fast_decay_fraction : float
+        Fraction of the off-time in fast decay for ``"mixed"`` [-].
+    current_regulation : str
+        What the trip comparator does (``peak_current_limit`` or ``sense_threshold /
+        sense_resistance``): ``"cycle-by-cycle"`` (decay for the rest of the PWM period) or
+        ``"fixed-off-time"`` (decay for ``off_time``, then drive again).
+    sense_resistance : float
+        Current-sense resistor [ohm] (in the current path it sees; 0: none).
+    sense_threshold : float
+        Comparator threshold across the sense resistor [V]; the trip current is
+        ``sense_threshold / sense_resistance``.
+    sense_location : str
+        ``"in-line"`` (in series with the armature: sees its current in every state),
+        ``"low-side"`` or ``"high-side"`` (one resistor in the bridge's bus return or feed:
+        sees the bus current ``g i``, zero while the current recirculates in slow decay).
+    off_time : float or None
+        Fixed off-time of ``"fixed-off-time"`` regulation [s].
+    comparator_delay : float
+        Delay from the trip to the switches turning off [s] (the peak overshoots the level).
+    min_on_time : float
+        Shortest drive after a pulse starts, whatever the comparator says [s].
     """
 
     model: str = "ideal"
@@ -731,6 +782,24 @@ class Bridge:
     switching_energy_current: float = 0.0
     peak_current_limit: float = 0.0
     blanking_time: float = 0.0
+    decay: str | None = None
+    slow_decay: str = "low-side"
+    fast_decay: str = "diodes"
+    fast_decay_fraction: float = 0.5
+    current_regulation: str = "cycle-by-cycle"
+    sense_resistance: float = 0.0
+    sense_threshold: float = 0.0
+    sense_location: str = "in-line"
+    off_time: float | None = None
+    comparator_delay: float = 0.0
+    min_on_time: float = 0.0
+
+    @property
+    def trip_current_A(self) -> float:
+        """Trip level of the current comparator [A] (0: none)."""
+        if self.sense_threshold > 0.0 and self.sense_resistance > 0.0:
+            return self.sense_threshold / self.sense_resistance
+        return self.peak_current_limit
 
 
 @dataclass(frozen=True)
@@ -765,6 +834,16 @@ class Protection:
         [s]
     restart_margin : float
         [V]
+    over_current : float
+        Over-current trip level of the sensed current [A] (0: none); the sense resistor's
+        location decides which bridge states it sees.
+    over_current_deglitch : float
+        The sensed current must stay above the level this long to trip [s].
+    over_current_action : str
+        ``"latch"`` (stays off) or ``"retry"`` (restarts after ``over_current_retry_time``,
+        checked at each kernel period start).
+    over_current_retry_time : float
+        [s]
     """
 
     over_voltage: float = 0.0
@@ -772,6 +851,10 @@ class Protection:
     restart: str = "latch"
     restart_delay: float = 0.1
     restart_margin: float = 0.0
+    over_current: float = 0.0
+    over_current_deglitch: float = 0.0
+    over_current_action: str = "latch"
+    over_current_retry_time: float = 0.01
 
 
 @dataclass(frozen=True)

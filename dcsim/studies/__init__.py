@@ -1,0 +1,1 @@
+"""Small families of runs that answer one question each (e.g. speed against duty)."""
