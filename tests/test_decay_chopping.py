@@ -457,3 +457,43 @@ def test_decay_needs_the_switching_model():
     text = bench(bridge='decay = "fast"').replace('model = "switching"', 'model = "averaged"')
     with pytest.raises(ScenarioError, match="bridge.decay"):
         dcsim.load_scenario_text(text)
+
+
+# --------------------------------------------------------------------------------------------
+# Commands
+# --------------------------------------------------------------------------------------------
+
+
+def test_duty_curve_command_writes_its_files(tmp_path, capsys):
+    from dcsim.cli import main
+
+    path = tmp_path / "rig.toml"
+    path.write_text(bench(volts=12.0, locked=False, inertia=1e-6, load_torque=0.005,
+                          record=None, duration="20 ms"))  # fmt: skip
+    out = tmp_path / "out"
+    assert main(["duty-curve", str(path), "--out", str(out), "--points", "2"]) == 0
+    text = capsys.readouterr().out
+    assert "settled speed against drive duty" in text and "Caution" in text
+    rows = (out / "duty_curve.csv").read_text().splitlines()
+    assert rows[0] == "decay,duty,speed_rad_s,current_A,ripple_A"
+    assert len(rows) == 1 + 3 * 2
+    assert (out / "duty_curve.png").stat().st_size > 10_000
+    # an averaged-bridge scenario: one line naming the key, exit 2
+    path.write_text(bench(duration="20 ms").replace('"switching"', '"averaged"'))
+    assert main(["duty-curve", str(path), "--out", str(out)]) == 2
+    err = capsys.readouterr().err.strip()
+    assert "bridge.model" in err and "\n" not in err
+
+
+def test_run_writes_the_comparator_log(tmp_path):
+    from dcsim.cli import main
+
+    path = tmp_path / "chop.toml"
+    path.write_text(bench(bridge=chopper(), record=None, duration="1 ms"))
+    assert main(["run", str(path), "--out", str(tmp_path / "o")]) == 0
+    lines = (tmp_path / "o" / "chops.csv").read_text().splitlines()
+    assert lines[0] == "decay_start_s,current_at_start_A,decay_end_s,current_at_end_A"
+    res = dcsim.simulate(dcsim.load_scenario_text(path.read_text()))
+    assert len(lines) - 1 == res.chops.shape[0] == res.summary["current_limit_events"]
+    first = [float(v) for v in lines[1].split(",")]
+    assert first == pytest.approx(res.chops[0].tolist(), rel=1e-15)

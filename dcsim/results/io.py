@@ -36,6 +36,7 @@ from dcsim.results.trace import TRACE_COLUMNS, SimulationResult, Trace
 
 TRACE_FILE = "trace.csv"
 SUMMARY_FILE = "summary.json"
+CHOPS_FILE = "chops.csv"
 
 _STAGING_PREFIX = ".dcsim-staging-"
 _ROWS_PER_CHUNK = 4096
@@ -447,12 +448,30 @@ def _commit(staged: list[Path], out: Path, staging: Path) -> list[Path]:
     return targets
 
 
+def write_chops_csv(chops: np.ndarray, path: str | Path) -> Path:
+    """Write the current comparator's log (one row per decay) as CSV, atomically.
+
+    Columns: ``decay_start_s, current_at_start_A, decay_end_s, current_at_end_A`` (an
+    unfinished decay has empty end cells).
+    """
+    names = ["decay_start_s", "current_at_start_A", "decay_end_s", "current_at_end_A"]
+
+    def write(tmp: Path) -> None:
+        with open(tmp, "w", encoding="utf-8", newline="\n") as fh:
+            fh.write(",".join(names) + "\n")
+            for row in chops:
+                fh.write(",".join("" if np.isnan(v) else repr(float(v)) for v in row) + "\n")
+
+    return atomic_write(path, write)
+
+
 def write_outputs(result: SimulationResult, out_dir: str | Path) -> list[Path]:
     """Write all outputs of a run into a directory, all or nothing.
 
     Files: ``trace.csv`` (:func:`write_trace_csv`), ``summary.json`` (:func:`write_summary_json`
     with ``step_s`` [s], ``record_interval_s`` [s], ``event_times_s`` [s] and
-    ``scenario_source`` added unless the summary has them), and the PNG plots of
+    ``scenario_source`` added unless the summary has them), ``chops.csv`` when the current
+    comparator chopped (:func:`write_chops_csv`), and the PNG plots of
     :func:`dcsim.results.plots.save_plots`.
 
     Parameters
@@ -483,8 +502,10 @@ def write_outputs(result: SimulationResult, out_dir: str | Path) -> list[Path]:
         staged = [
             write_trace_csv(result.trace, staging / TRACE_FILE),
             write_summary_json(_summary_for_file(result), staging / SUMMARY_FILE),
-            *save_plots(result, staging),
         ]
+        if result.chops.shape[0]:
+            staged.append(write_chops_csv(result.chops, staging / CHOPS_FILE))
+        staged += save_plots(result, staging)
         return _commit(staged, out, staging)
     finally:
         shutil.rmtree(staging, ignore_errors=True)
