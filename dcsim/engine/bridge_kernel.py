@@ -1599,7 +1599,7 @@ def run_periods(x, md, q, period, n_grid, n_sub, duration, p_first, p_last, ev_t
                 # the forms of the new leg states, from a small cache (they repeat every
                 # period); the other modes are still right if every guard holds at x
                 fk = ((mode_key(md) * 4 + md[M_OCP] + 1) * 2 + md[M_TRIP]) * 2 + md[M_MELTED]
-                fs_ = fk & (FORM_SLOTS - 1)
+                fs_ = (fk ^ (fk >> 7) ^ (fk >> 14)) & (FORM_SLOTS - 1)
                 # (averaged legs depend on the modulation, which a closed loop changes)
                 if fcache_key[fs_] == fk and fcache_gen[fs_] == genbox[0] and la != LEG_AVG:
                     for r_ in range(N_F):
