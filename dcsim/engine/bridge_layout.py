@@ -71,7 +71,8 @@ Q_PRE_V = 46  # bypass when the bus reaches this voltage [V] (inf: by time only)
 Q_FUSE = 47  # 1 with a fuse in the supply line
 Q_FUSE_IMIN = 48  # minimum melting current [A]
 Q_FUSE_TAU = 49  # heating time constant [s]
-N_Q = 50
+Q_TS = 50  # static (breakaway) friction [N*m]; 0: equal to Q_TC (breakaway = max of both)
+N_Q = 51
 
 # Discrete modes (int64)
 M_STUCK = 0  # shaft held at zero speed
