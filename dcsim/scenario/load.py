@@ -1324,6 +1324,12 @@ def _control_problem(
     """Rules of the closed-loop controller, its loops, reference and sensors."""
     mode = state["control.mode"]
     loops = _LOOPS_OF_MODE[mode]
+    if "control.speed.regen_limit" in given and mode not in ("speed", "position"):
+        return (
+            "control.speed.regen_limit",
+            "expected control.mode 'speed' or 'position' for a regenerative current limit (it "
+            f"clamps the speed loop's current command), found mode '{mode}'",
+        )
     if mode == "voltage":
         for table in ("control.reference", "sensors"):
             if table in present:

@@ -353,7 +353,11 @@ KEYS: dict[str, dict[str, KeySpec]] = {
         "10 A",
         feedforward=("acceleration_feedforward", "friction_feedforward"),
         limit_required=True,
-    ),
+    )
+    | {
+        # braking current the speed loop may command (opposing the measured speed); None: limit
+        "regen_limit": _q("A", "a current", "3 A", default=None, constraint="positive"),
+    },
     "control.position": _loop_keys(
         "rad",
         "rad/s",
@@ -985,10 +989,17 @@ class SpeedLoop(Loop):
         Add ``J * reference acceleration / K`` (J = rotor + load inertia).
     friction_feedforward : bool
         Add ``(B w_ref + T_c sgn w_ref) / K``.
+    regen_limit : float or None
+        Regenerative (braking) current limit [A]: with the measured speed positive the
+        current command is clamped below at ``-regen_limit`` (above at ``limit``), with it
+        negative above at ``+regen_limit``; at zero measured speed the limit is symmetric.
+        The usual firmware defence of a supply that cannot take current back. ``None``: the
+        braking current is limited by ``limit`` only.
     """
 
     acceleration_feedforward: bool = False
     friction_feedforward: bool = False
+    regen_limit: float | None = None
 
 
 @dataclass(frozen=True)
