@@ -222,6 +222,54 @@ voltage = "{v0} V"
     assert K * i[first - 1] > TC  # held by the static level, well above Coulomb
 
 
+def _open_loop(voltage: float, duration: float, coulomb: float, static: float, events=""):
+    text = MOTOR.replace(f'coulomb_friction = "{TC} N*m"', f'coulomb_friction = "{coulomb} N*m"')
+    text += f'static_friction = "{static} N*m"\n'
+    text += f"""
+[simulation]
+duration = "{duration} s"
+record_interval = "{TAU / 50} s"
+[supply]
+voltage = "12 V"
+[control]
+mode = "voltage"
+voltage = "{voltage} V"
+{events}"""
+    return simulate_checked(load_scenario_text(text))
+
+
+def test_static_friction_without_coulomb_friction():
+    # T_c = 0 < T_s: held until K i = T_s, then only viscous friction acts while sliding.
+    v = 1.0
+    res = _open_loop(v, 10 * TAU, 0.0, TS)
+    tr = res.trace
+    t, w = tr["time_s"], tr["speed_rad_s"]
+    # Locked R-L step response i = V/R (1 - e^-t/tau) reaches T_s / K at
+    # t_b = -tau ln(1 - R T_s / (K V)). Source: Alexander & Sadiku, Fundamentals of Electric
+    # Circuits, sec. 7.6 (RL step response).
+    t_b = -TAU * math.log(1.0 - R * TS / (K * v))
+    first = np.flatnonzero(w != 0.0)[0]
+    assert t[first - 1] <= t_b < t[first]
+    sliding = slice(first, None)
+    assert np.all(w[sliding] > 0.0)
+    # sliding friction is the viscous term alone (no Coulomb level): B w
+    np.testing.assert_allclose(tr["friction_torque_Nm"][sliding], B * w[sliding], rtol=1e-12)
+
+
+def test_an_event_lowering_the_static_friction_releases_a_stuck_shaft():
+    # Stuck at the steady locked current V/R, with T_c < K V/R < T_s; at 5 tau an event
+    # lowers the breakaway torque below K i: the shaft breaks away at that instant.
+    v = 0.3
+    assert TC < K * v / R < TS
+    t_ev = 5 * TAU
+    events = f'[[events]]\nat = "{t_ev} s"\nset = {{ "motor.static_friction" = "{TC} N*m" }}\n'
+    res = _open_loop(v, 10 * TAU, TC, TS, events)
+    tr = res.trace
+    t, w = tr["time_s"], tr["speed_rad_s"]
+    assert np.all(w[t <= t_ev] == 0.0)
+    assert np.all(w[t > t_ev] > 0.0)
+
+
 # --------------------------------------------------------------------------------------------
 # (b) Stick-slip under a PI speed loop at a low reference
 # --------------------------------------------------------------------------------------------
