@@ -161,6 +161,7 @@ def controller_inputs(sc: Scenario) -> ControllerInputs:
         if name not in active or loop is None:
             cp[o + C.L_RATIO] = 1.0
             cp[o + C.L_LIMIT] = math.inf
+            cp[o + C.L_REGEN] = math.inf
             continue
         kp, ki, kd = loop.parallel_gains()
         cp[o + C.L_KP] = kp
@@ -169,6 +170,8 @@ def controller_inputs(sc: Scenario) -> ControllerInputs:
         cp[o + C.L_TF] = loop.derivative_filter
         cp[o + C.L_B] = loop.setpoint_weight
         cp[o + C.L_LIMIT] = math.inf if loop.limit is None else loop.limit
+        regen = getattr(loop, "regen_limit", None)  # the speed loop's only
+        cp[o + C.L_REGEN] = math.inf if regen is None else regen
         # default tracking time: the integral time kp / ki (Astrom & Hagglund 1995, sec. 3.5,
         # suggest T_t between T_d and T_i); a pure integral loop tracks in one sample
         tt = loop.tracking_time

@@ -7,9 +7,12 @@ The kernels stop the plant at every base sample ``t_k = k h`` (the fastest loop'
 time) and call :func:`control_sample` with the true state there. Every measurement is sampled
 and held there (sample-and-hold); a loop whose sample time is ``n`` base samples runs when
 ``k`` is a multiple of ``n``, outer loops first, each inner loop following the latest output
-of the loop around it. The armature voltage command that results is applied from ``t_k``
-(the computation takes no time), or from ``t_{k+1}`` with ``control.computation_delay``. The
-PWM bridge models turn it into a duty at the start of the next PWM period.
+of the loop around it. The speed loop's current command is clamped at ``+-limit``, and a
+braking command (opposite to the measured speed) at the regenerative limit when one is set
+(``control.speed.regen_limit``), anti-windup acting at whichever bound holds. The armature
+voltage command that results is applied from ``t_k`` (the computation takes no time), or from
+``t_{k+1}`` with ``control.computation_delay``. The PWM bridge models turn it into a duty at
+the start of the next PWM period.
 
 Sensors
 -------
@@ -113,6 +116,7 @@ from dcsim.controllers.layout import (
     L_H,
     L_LIMIT,
     L_RATIO,
+    L_REGEN,
     LOOP_CURRENT,
     LOOP_POSITION,
     LOOP_SPEED,
@@ -129,7 +133,7 @@ from dcsim.controllers.layout import (
     SPEED_PERIOD,
 )
 from dcsim.controllers.motion import evaluate
-from dcsim.controllers.pid import pid_step
+from dcsim.controllers.pid import pid_step, pid_step_bounded
 
 TWO_PI = 2.0 * math.pi
 
@@ -307,10 +311,15 @@ def control_sample(k, t, i, w, th, vbus, cp, cs, rng, segs):
                 sgn = 1.0 if w_ref > 0.0 else (-1.0 if w_ref < 0.0 else 0.0)
                 ff += (cp[C_BV] * w_ref + cp[C_TC] * sgn) / kt
             lim = cp[ps + L_LIMIT]
-            u = pid_step(cp, ps, cs, ss, w_ref, w_m, ff, lim)
+            # regenerative current limit: a braking command (opposing the measured speed)
+            # is clamped at the smaller of the two limits
+            brake = min(lim, cp[ps + L_REGEN])
+            lo = -brake if w_m > 0.0 else -lim
+            hi = brake if w_m < 0.0 else lim
+            u = pid_step_bounded(cp, ps, cs, ss, w_ref, w_m, ff, lo, hi)
             cs[rec + K_SPEED_CMD] = w_ref
             cs[rec + K_W_INT] = cs[ss + S_INT]
-            cs[rec + K_SPD_LIMITED] = 1.0 if abs(u) >= lim else 0.0
+            cs[rec + K_SPD_LIMITED] = 1.0 if u >= hi or u <= lo else 0.0
         i_ref = cs[ss + S_OUT]
     else:
         i_ref = r

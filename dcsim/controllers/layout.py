@@ -34,7 +34,8 @@ L_U0 = 11  # initial output [output unit] (bumpless start; nan: the integral sta
 L_ACTIVE = 12  # 1 when the mode runs this loop
 L_FF = 13  # feed-forward switch (current: back-EMF; speed: acceleration; position: speed)
 L_FF2 = 14  # second feed-forward switch (speed: friction)
-NLP = 15
+L_REGEN = 15  # speed loop: largest current command opposing the measured speed [A] (inf: none)
+NLP = 16
 
 AW_NONE = 0
 AW_CLAMP = 1

@@ -32,7 +32,8 @@ Anti-windup (Astrom & Hagglund, *PID Controllers: Theory, Design and Tuning*, 2n
 section 3.5, "integrator windup"):
 
 - clamping (conditional integration): the integral is not advanced at a sample where the
-  output is at its limit and the error would drive it further into the limit;
+  output is at its limit and the error would drive it further into the limit; the two
+  limits may differ (:func:`pid_step_bounded`), each acting as its own side's bound;
 - back-calculation: the integral is also driven by ``(u - v)/T_t``, the difference between
   the limited and the unlimited output, with the tracking time ``T_t``
   (``I_{k+1} += h (u_k - v_k)/T_t``, taking effect at the next sample).
@@ -75,6 +76,13 @@ from dcsim.controllers.layout import (
 
 @njit(cache=True, error_model="numpy")
 def pid_step(cp, o, cs, s, r, y, u_ff, limit):
+    """One sample of the loop with a symmetric output limit ``+-limit``
+    (:func:`pid_step_bounded` with ``-limit, limit``)."""
+    return pid_step_bounded(cp, o, cs, s, r, y, u_ff, -limit, limit)
+
+
+@njit(cache=True, error_model="numpy")
+def pid_step_bounded(cp, o, cs, s, r, y, u_ff, u_min, u_max):
     """One sample of the loop whose parameters start at ``cp[o]`` and state at ``cs[s]``.
 
     Parameters
@@ -89,8 +97,9 @@ def pid_step(cp, o, cs, s, r, y, u_ff, limit):
         Measurement [input unit].
     u_ff : float
         Feed-forward added before the limit [output unit].
-    limit : float
-        Output limit (symmetric, > 0; inf for none) [output unit].
+    u_min, u_max : float
+        Output limits, ``u_min < 0 < u_max`` (-inf / inf for none) [output unit]; they may
+        differ (the speed loop's regenerative current limit). Anti-windup acts at either.
 
     Returns
     -------
@@ -137,18 +146,18 @@ def pid_step(cp, o, cs, s, r, y, u_ff, limit):
         i_prev = cs[s + S_INT]
     i_new = i_prev + now
     v = p_term + i_new + d_term + u_ff
-    u = min(limit, max(-limit, v))
+    u = min(u_max, max(u_min, v))
     if aw == AW_CLAMP and u != v and (v - u) * e > 0.0 and started:
         # conditional integration: hold the integral where it is
         i_new = i_prev
         v = p_term + i_new + d_term + u_ff
-        u = min(limit, max(-limit, v))
+        u = min(u_max, max(u_min, v))
     # what is carried to the next sample
     i_next = i_new
     if disc != DISC_BACKWARD and disc != DISC_TUSTIN:
         if not (aw == AW_CLAMP and u != v and (v - u) * e > 0.0):
             i_next = i_new + ki * h * e
-    if aw == AW_BACK and math.isfinite(limit):
+    if aw == AW_BACK and (math.isfinite(u_min) or math.isfinite(u_max)):
         i_next += h / cp[o + L_TT] * (u - v)
     cs[s + S_INT] = i_next
     cs[s + S_DER] = d_term

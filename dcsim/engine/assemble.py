@@ -21,6 +21,7 @@ PARAM_OF_KEY: dict[str, int] = {
     "motor.torque_constant": L.P_K,
     "motor.viscous_friction": L.P_B,
     "motor.coulomb_friction": L.P_TC,
+    "motor.static_friction": L.P_TS,
     "load.torque": L.P_TL,
     "load.inertia": L.P_J,  # the event value is the load's; the kernel gets rotor + load
     "load.locked": L.P_LOCK,
@@ -103,6 +104,7 @@ def parameter_vector(sc: Scenario) -> np.ndarray:
     p[L.P_C] = s.capacitance
     p[L.P_REGEN] = 1.0 if s.regenerative else 0.0
     p[L.P_VCMD] = c.voltage
+    p[L.P_TS] = m.static_friction or 0.0  # None: the breakaway level is the Coulomb one
     return p
 
 
@@ -327,6 +329,7 @@ def bridge_parameters(sc: Scenario):
     q[B.Q_J] = m.inertia + ld.inertia
     q[B.Q_B] = m.viscous_friction
     q[B.Q_TC] = m.coulomb_friction
+    q[B.Q_TS] = m.static_friction or 0.0  # None: the breakaway level is the Coulomb one
     q[B.Q_TL] = ld.torque
     q[B.Q_LOCK] = 1.0 if ld.locked else 0.0
     bat = sc.battery
@@ -442,6 +445,7 @@ def assemble_bridge(sc: Scenario) -> BridgeInputs:
         "motor.torque_constant": B.Q_K,
         "motor.viscous_friction": B.Q_B,
         "motor.coulomb_friction": B.Q_TC,
+        "motor.static_friction": B.Q_TS,
         "load.torque": B.Q_TL,
         "load.inertia": B.Q_J,
         "load.locked": B.Q_LOCK,

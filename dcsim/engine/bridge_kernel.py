@@ -173,6 +173,7 @@ from dcsim.engine.bridge_layout import (
     Q_TL,
     Q_TOFF,
     Q_TONMIN,
+    Q_TS,
     Q_UNIPOLAR,
     Q_UV,
     Q_VCMD,
@@ -388,12 +389,13 @@ def _guard_rows(md, q, forms, fsc):
     for r in range(F_G0, N_F):
         for j in range(N_A):
             forms[r, j] = 0.0
-    if q[Q_LOCK] < 0.5 and q[Q_TC] > 0.0:
-        if md[M_STUCK] == 1:  # T_c - |K i - T_L| >= 0 as two rows
+    ts = max(q[Q_TS], q[Q_TC])  # breakaway level (static friction)
+    if q[Q_LOCK] < 0.5 and ts > 0.0:
+        if md[M_STUCK] == 1:  # T_s - |K i - T_L| >= 0 as two rows
             forms[n, S_I] = -q[Q_K]
-            forms[n, S_ONE] = q[Q_TC] - q[Q_TL]
+            forms[n, S_ONE] = ts - q[Q_TL]
             forms[n + 1, S_I] = q[Q_K]
-            forms[n + 1, S_ONE] = q[Q_TC] + q[Q_TL]
+            forms[n + 1, S_ONE] = ts + q[Q_TL]
             n += 2
         elif md[M_FSIGN] != 0:
             forms[n, S_W] = md[M_FSIGN]
@@ -697,7 +699,9 @@ def update_modes(y, md, q, forms, fsc, t, acc, trips, ocv_soc, ocv_v):
         compute_forms(md, q, forms, fsc)
         changed = False
         i = y[S_I]
-        stuck, fsign = friction_state(y[S_W], q[Q_K] * i - q[Q_TL], q[Q_TC], q[Q_LOCK] > 0.5)
+        stuck, fsign = friction_state(
+            y[S_W], q[Q_K] * i - q[Q_TL], q[Q_TC], q[Q_TS], q[Q_LOCK] > 0.5
+        )
         if (1 if stuck else 0) != md[M_STUCK] or int(fsign) != md[M_FSIGN]:
             md[M_STUCK] = 1 if stuck else 0
             md[M_FSIGN] = int(fsign)

@@ -85,7 +85,8 @@ Q_OCP = 60  # over-current trip level of the sensed current [A] (0: none)
 Q_OCP_DG = 61  # deglitch time [s]
 Q_OCP_RETRY = 62  # 1: retry after Q_OCP_RT, 0: latch
 Q_OCP_RT = 63  # retry time [s]
-N_Q = 64
+Q_TS = 64  # static (breakaway) friction [N*m]; 0: equal to Q_TC (breakaway = max of both)
+N_Q = 65
 
 # Discrete modes (int64)
 M_STUCK = 0  # shaft held at zero speed

@@ -67,6 +67,7 @@ from dcsim.engine.layout import (
     P_RS,
     P_TC,
     P_TL,
+    P_TS,
     P_VCMD,
     P_VS,
     R_ARMATURE_V,
@@ -124,7 +125,7 @@ def _bridge_state(x, p, has_cap):
 def regime_of(x, p, has_cap):
     """Regime code and Coulomb friction sign at state ``x``."""
     stuck, fsign = friction_state(
-        x[X_SPEED], p[P_K] * x[X_CURRENT] - p[P_TL], p[P_TC], p[P_LOCK] > 0.5
+        x[X_SPEED], p[P_K] * x[X_CURRENT] - p[P_TL], p[P_TC], p[P_TS], p[P_LOCK] > 0.5
     )
     bridge = _bridge_state(x, p, has_cap)
     blocked = has_cap and p[P_REGEN] < 0.5 and x[X_BUS] > p[P_VS]
@@ -216,10 +217,10 @@ def guard(x, p, has_cap, r, fsign):
     stuck = (r % 2) == 1
     bridge = (r // 2) % 3
     blocked = r >= 6
-    tc = p[P_TC]
-    if p[P_LOCK] < 0.5 and tc > 0.0:
+    ts = max(p[P_TS], p[P_TC])  # breakaway level (static friction)
+    if p[P_LOCK] < 0.5 and ts > 0.0:
         if stuck:
-            g = min(g, tc - abs(p[P_K] * x[X_CURRENT] - p[P_TL]))
+            g = min(g, ts - abs(p[P_K] * x[X_CURRENT] - p[P_TL]))
         elif fsign != 0.0:
             g = min(g, x[X_SPEED] * fsign)
     vc = p[P_VCMD]

@@ -26,7 +26,8 @@ P_RS = 9  # source resistance [ohm]
 P_C = 10  # bus capacitance [F]
 P_REGEN = 11  # 1.0 when the source takes current back
 P_VCMD = 12  # commanded armature voltage [V]
-N_PARAM = 13
+P_TS = 13  # static (breakaway) friction [N*m]; 0: equal to P_TC (breakaway = max of both)
+N_PARAM = 14
 
 # Accumulators (integrated at full rate by the kernel)
 A_I2T = 0  # integral of i^2 [A^2*s]

@@ -1,15 +1,20 @@
-"""Rigid shaft with viscous and Coulomb friction, and a locked-rotor condition.
+"""Rigid shaft with viscous, Coulomb and static friction, and a locked-rotor condition.
 
 Equations::
 
-    J dw/dt = K i - B w - T_c sgn(w) - T_load       (free)
-    dw/dt = 0, w = 0                                (stuck: |K i - T_load| <= T_c, or locked)
+    J dw/dt = K i - B w - T_c sgn(w) - T_load       (free, sliding)
+    dw/dt = 0, w = 0                                (stuck: |K i - T_load| <= T_s, or locked)
     dtheta/dt = w
 
-Coulomb friction is modelled with true sticking (the Karnopp-type switch between a stuck
-and a sliding state): at rest the friction torque balances the net driving torque up to
-``T_c``, so the shaft stays exactly at zero speed; it breaks away when the net torque exceeds
-``T_c``. The static (breakaway) level equals the Coulomb level.
+Dry friction is modelled with true sticking (the Karnopp-type switch between a stuck and a
+sliding state [1]_): at rest the friction torque balances the net driving torque up to the
+static (breakaway) level ``T_s``, so the shaft stays exactly at zero speed; it breaks away
+when the net torque exceeds ``T_s``. While it slides the friction is the Coulomb level
+``T_c sgn(w)`` (plus the viscous ``B w``); it sticks again when the speed reaches zero with
+``|K i - T_load| <= T_s``. With ``T_s > T_c`` the drop from the static to the Coulomb level
+at breakaway is what lets integral action produce stick-slip limit cycles at low speed [2]_.
+``T_s = T_c`` (the default) is the plain Coulomb model. Breakaway itself does no work; the
+friction work while sliding is ``(B w + T_c sgn(w)) w``.
 
 References
 ----------
@@ -17,7 +22,8 @@ References
    systems", J. Dyn. Sys., Meas., Control 107(1) (1985) 100-103, doi:10.1115/1.3140698.
 .. [2] B. Armstrong-Helouvry, P. Dupont and C. Canudas de Wit, "A survey of models, analysis
    tools and compensation methods for the control of machines with friction", Automatica
-   30(7) (1994) 1083-1138, doi:10.1016/0005-1098(94)90209-7 -- Coulomb + viscous model.
+   30(7) (1994) 1083-1138, doi:10.1016/0005-1098(94)90209-7 -- static + Coulomb + viscous
+   model, stick-slip under integral control (sections from memory).
 """
 
 from __future__ import annotations
@@ -30,9 +36,9 @@ from dcsim.engine.layout import X_CURRENT, X_POSITION, X_SPEED
 
 @njit(cache=True, error_model="numpy", inline="always")
 def friction_state(
-    speed_rad_s: float, drive_torque_Nm: float, coulomb_Nm: float, locked: bool
+    speed_rad_s: float, drive_torque_Nm: float, coulomb_Nm: float, static_Nm: float, locked: bool
 ) -> tuple[bool, float]:
-    """Decide whether the shaft is stuck and which way Coulomb friction acts [1]_.
+    """Decide whether the shaft is stuck and which way sliding friction acts [1]_.
 
     Parameters
     ----------
@@ -41,7 +47,10 @@ def friction_state(
     drive_torque_Nm : float
         Net torque apart from friction, ``K i - T_load`` [N*m].
     coulomb_Nm : float
-        Coulomb friction (= breakaway) torque [N*m].
+        Coulomb (sliding) friction torque ``T_c`` [N*m].
+    static_Nm : float
+        Static (breakaway) friction torque ``T_s`` [N*m]; the breakaway level is
+        ``max(T_s, T_c)``, so 0 means "equal to the Coulomb level".
     locked : bool
         Rotor held by the load.
 
@@ -50,14 +59,17 @@ def friction_state(
     stuck : bool
         The shaft is held at exactly zero speed.
     sign : float
-        Direction of the sliding friction torque (+1, -1, or 0 without Coulomb friction).
+        Direction of the sliding friction torque (+1, -1, or 0 without dry friction). It is
+        +-1 whenever there is a breakaway level, even with ``T_c = 0``, so that the kernels
+        guard the speed's return to zero (where the shaft may stick).
     """
     if locked:
         return True, 0.0
-    if coulomb_Nm <= 0.0:
+    breakaway = max(static_Nm, coulomb_Nm)
+    if breakaway <= 0.0:
         return False, 0.0
     if speed_rad_s == 0.0:
-        if abs(drive_torque_Nm) <= coulomb_Nm:
+        if abs(drive_torque_Nm) <= breakaway:
             return True, 0.0
         return False, 1.0 if drive_torque_Nm > 0.0 else -1.0
     return False, 1.0 if speed_rad_s > 0.0 else -1.0

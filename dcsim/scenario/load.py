@@ -925,6 +925,25 @@ def _rule_voltage_only_open_loop(state: dict[str, Any], given: set[str], show: _
     return None
 
 
+def _rule_static_above_coulomb(state: dict[str, Any], given: set[str], show: _Show) -> _Problem:
+    """The breakaway (static) friction cannot be below the sliding (Coulomb) level."""
+    ts = state.get("motor.static_friction")
+    if ts is not None and ts < state["motor.coulomb_friction"]:
+        if "motor.coulomb_friction" in given and "motor.static_friction" not in given:
+            return (  # an event raised the Coulomb level above the breakaway torque
+                "motor.coulomb_friction",
+                "expected a Coulomb friction no greater than motor.static_friction "
+                f"({show('motor.static_friction')}), found {show('motor.coulomb_friction')}",
+            )
+        return (
+            "motor.static_friction",
+            "expected a breakaway torque at least motor.coulomb_friction "
+            f"({show('motor.coulomb_friction')}; leave static_friction out for no static "
+            f"excess), found {show('motor.static_friction')}",
+        )
+    return None
+
+
 def _rule_design_checks(state: dict[str, Any], given: set[str], show: _Show) -> _Problem:
     """The duty cycle, the thermal model and the check limits must make sense together."""
     cycle = state.get("simulation.cycle_time")
@@ -1007,6 +1026,7 @@ _RULES: tuple[_Rule, ...] = (
     _rule_intervals_within_run,
     _rule_bus_needs_resistance,
     _rule_voltage_only_open_loop,
+    _rule_static_above_coulomb,
 )
 """Rules tying keys together, checked on the initial values and after each event time."""
 
@@ -1396,6 +1416,12 @@ def _control_problem(
     """Rules of the closed-loop controller, its loops, reference and sensors."""
     mode = state["control.mode"]
     loops = _LOOPS_OF_MODE[mode]
+    if "control.speed.regen_limit" in given and mode not in ("speed", "position"):
+        return (
+            "control.speed.regen_limit",
+            "expected control.mode 'speed' or 'position' for a regenerative current limit (it "
+            f"clamps the speed loop's current command), found mode '{mode}'",
+        )
     if mode == "voltage":
         for table in ("control.reference", "sensors"):
             if table in present:

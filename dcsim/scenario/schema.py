@@ -214,6 +214,8 @@ KEYS: dict[str, dict[str, KeySpec]] = {
             changeable=True,
         ),
         "coulomb_friction": _q("N*m", "a torque", "0.01 N*m", default=0.0, changeable=True),
+        # breakaway torque; None: equal to coulomb_friction (no static excess)
+        "static_friction": _q("N*m", "a torque", "0.015 N*m", default=None, changeable=True),
         # catalogue figures (datasheet import): optional, at the nominal voltage
         "nominal_voltage": _q("V", "a voltage", "24 V", default=None, constraint="positive"),
         "no_load_speed": _q("rad/s", "a speed", "5200 rpm", default=None, constraint="positive"),
@@ -370,7 +372,11 @@ KEYS: dict[str, dict[str, KeySpec]] = {
         "10 A",
         feedforward=("acceleration_feedforward", "friction_feedforward"),
         limit_required=True,
-    ),
+    )
+    | {
+        # braking current the speed loop may command (opposing the measured speed); None: limit
+        "regen_limit": _q("A", "a current", "3 A", default=None, constraint="positive"),
+    },
     "control.position": _loop_keys(
         "rad",
         "rad/s",
@@ -600,7 +606,11 @@ class Motor:
     viscous_friction : float
         Viscous friction coefficient [N*m*s/rad].
     coulomb_friction : float
-        Coulomb (dry) friction torque, also the static breakaway level [N*m].
+        Coulomb (dry, sliding) friction torque [N*m].
+    static_friction : float or None
+        Static (breakaway) friction torque [N*m], at least ``coulomb_friction``: a shaft at
+        rest stays there while ``|K i - T_load|`` does not exceed it. ``None``: equal to
+        ``coulomb_friction`` (no static excess). See :mod:`dcsim.plant.mechanics`.
     kind : str
         Machine kind; only ``"permanent_magnet"`` so far.
     nominal_voltage : float or None
@@ -628,6 +638,7 @@ class Motor:
     inertia: float
     viscous_friction: float = 0.0
     coulomb_friction: float = 0.0
+    static_friction: float | None = None
     kind: str = "permanent_magnet"
     nominal_voltage: float | None = None
     no_load_speed: float | None = None
@@ -1061,10 +1072,17 @@ class SpeedLoop(Loop):
         Add ``J * reference acceleration / K`` (J = rotor + load inertia).
     friction_feedforward : bool
         Add ``(B w_ref + T_c sgn w_ref) / K``.
+    regen_limit : float or None
+        Regenerative (braking) current limit [A]: with the measured speed positive the
+        current command is clamped below at ``-regen_limit`` (above at ``limit``), with it
+        negative above at ``+regen_limit``; at zero measured speed the limit is symmetric.
+        The usual firmware defence of a supply that cannot take current back. ``None``: the
+        braking current is limited by ``limit`` only.
     """
 
     acceleration_feedforward: bool = False
     friction_feedforward: bool = False
+    regen_limit: float | None = None
 
 
 @dataclass(frozen=True)
