@@ -71,7 +71,13 @@ Q_PRE_V = 46  # bypass when the bus reaches this voltage [V] (inf: by time only)
 Q_FUSE = 47  # 1 with a fuse in the supply line
 Q_FUSE_IMIN = 48  # minimum melting current [A]
 Q_FUSE_TAU = 49  # heating time constant [s]
-N_Q = 50
+Q_BAT_R = 50  # battery internal resistance alone [ohm] (part of Q_RS)
+Q_BMS_ICHG = 51  # battery disconnect: largest charge current [A] (inf: no limit)
+Q_BMS_IDIS = 52  # ... largest discharge current [A] (inf: no limit)
+Q_BMS_VFULL = 53  # ... largest terminal voltage OCV - R_bat i [V] (inf: no limit)
+Q_BMS_VRECLOSE = 54  # ... recloses when the bus falls below this voltage [V] (-inf: not)
+Q_BMS_TRECLOSE = 55  # ... recloses this long after opening [s] (inf: not)
+N_Q = 56
 
 # Discrete modes (int64)
 M_STUCK = 0  # shaft held at zero speed
@@ -86,7 +92,8 @@ M_PRE = 8  # pre-charge resistor in circuit (bridge disabled)
 M_TRIP = 9  # tripped (bridge disabled)
 M_SEG = 10  # battery table segment
 M_LIMITED = 11  # pulse ended by the peak current limit for the rest of the period
-N_M = 12
+M_BMS = 12  # battery disconnect open: the supply line is open until it recloses
+N_M = 13
 
 LEG_OFF = 0  # both switches of the leg off (its diodes conduct, or nothing)
 LEG_LOW = 1
@@ -122,7 +129,15 @@ A_TRIP_TIME = 24  # time of the last trip [s]
 A_BYPASS_TIME = 25  # when the pre-charge resistor was bypassed [s] (-1: not yet)
 A_CACHE_MISSES = 26
 A_PERIODS = 27
-N_ACC = 28
+A_ICAP2 = 28  # integral of the capacitor current squared [A^2*s]
+A_BUS_MIN_TIME = 29  # when the bus voltage was lowest [s]
+A_MARK_ICAP2 = 30  # A_ICAP2 at the start of the present period [A^2*s]
+A_CAP_RMS_PERIOD = 31  # largest RMS capacitor current over one period [A]
+A_PERIOD_BUS_MAX = 32  # bus voltage extremes within the present period [V]
+A_PERIOD_BUS_MIN = 33
+A_BUS_RIPPLE = 34  # largest peak-to-peak bus voltage over one period [V]
+A_BMS_OPEN_TIME = 35  # when the battery disconnect last opened [s] (-1: never)
+N_ACC = 36
 
 # Trace columns
 R_TIME = 0
@@ -145,7 +160,8 @@ R_FUSE_HEAT = 16
 R_SOC = 17
 R_LIMIT = 18
 R_ENABLED = 19
-N_REC = 20
+R_BATTERY_CONNECTED = 20
+N_REC = 21
 
 RECORD_NAMES = layout.RECORD_NAMES + (
     "duty",
@@ -157,6 +173,7 @@ RECORD_NAMES = layout.RECORD_NAMES + (
     "state_of_charge",
     "current_limit_active",
     "bridge_enabled",
+    "battery_connected",
 )
 """The core kernel's columns (same order, same meaning), then the power stage's."""
 
@@ -167,6 +184,10 @@ TRIP_RESTART = 3
 TRIP_FUSE = 4
 TRIP_BYPASS = 5
 TRIP_BUS_COLLAPSE = 6
+TRIP_BMS_CHARGE = 7  # battery disconnect opened: charge current above its limit
+TRIP_BMS_VOLTAGE = 8  # ... terminal voltage above the full-charge voltage
+TRIP_BMS_DISCHARGE = 9  # ... discharge current above its limit
+TRIP_BMS_RECLOSE = 10  # ... reclosed
 MAX_TRIPS = 256
 
 # Special event indices (negative: actions rather than parameters)
