@@ -169,6 +169,28 @@ def test_reclose_by_hysteresis_when_the_bus_falls_back():
     assert s["min_bus_voltage_time_s"] >= closed_again["time_s"]  # the inrush dip follows
 
 
+def test_a_reclose_level_above_what_the_battery_accepts_waits_for_the_bus():
+    # A reclose level of 13.5 V lies above OCV + R_bat I_chg = 12.84 V: closing there would
+    # charge the battery at (13.5 - 12.78) / 0.02 = 36 A and open at once. The disconnect
+    # waits instead; the bus falls on, and it recloses once the closed line would carry at
+    # most the limit -- found at a step boundary (not located), so within one nominal step's
+    # fall of the bus below OCV + R_bat I_chg. Source: Thevenin battery model (as above).
+    events = '[[events]]\nat = "0.3 s"\nset = { "load.torque" = "0.5 N*m" }'
+    res = winch(
+        "0.5 s", bms='max_charge_current = "3 A"\nreclose_voltage = "13.5 V"', events=events
+    )
+    s, tr = res.summary, res.trace
+    (closed_again,) = s["battery_reconnects"]
+    t = tr["time_s"]
+    level = ocv(np.interp(closed_again["time_s"], t, tr["state_of_charge"])) + R_BAT * 3.0
+    near = np.abs(t - closed_again["time_s"]) <= 1e-3
+    fall_per_step = np.max(-np.diff(tr["bus_voltage_V"][near]) / np.diff(t[near])) * s["step_s"]
+    assert level - fall_per_step <= closed_again["bus_voltage_V"] <= level
+    after = t > closed_again["time_s"]
+    assert np.max(-tr["supply_current_A"][after]) <= 3.0
+    assert len(s["battery_disconnects"]) == 1 and s["battery_connected_at_end"]
+
+
 def test_reclose_by_time_at_the_first_period_start_after_the_delay():
     # The reclose time is checked at each kernel period start (here one trace row, 50 us):
     # it recloses at the first period start at or after opening + delay. The bus is then far

@@ -32,8 +32,10 @@ grid of the nominal step). Each segment is advanced exactly by the matrix expone
 augmented matrix ``[[A, b], [0, 0]]`` (Moler & Van Loan), cached by regime and length (the
 segments of a period repeat while the duty does). State events -- the current reaching zero,
 the source diode blocking, the chopper comparator, the trip levels, stick/slip of the shaft,
-the peak current limit, the battery table's breakpoints, the fuse melting -- are located
-inside a segment by the Illinois method and the segment is split there.
+the peak current limit, the battery table's breakpoints, the fuse melting, the battery
+disconnect's limits (charge and discharge current, the terminal voltage ``OCV - R_bat i``) and
+its reclose level -- are located inside a segment by the Illinois method and the segment is
+split there. An open disconnect opens the supply line as a melted fuse does.
 
 References
 ----------
