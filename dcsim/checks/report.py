@@ -36,7 +36,7 @@ REPORT_DPI = 110
 """Resolution of the figure PNGs [dots per inch]."""
 
 
-GROUP_ORDER = ("fuse", "regeneration", "thermal", "duty", "loops")
+GROUP_ORDER = ("fuse", "regeneration", "thermal", "duty", "loops", "bus")
 """Order of the group sections; any other group follows in order of first appearance."""
 
 _GROUP_TITLES = {
@@ -45,6 +45,7 @@ _GROUP_TITLES = {
     "thermal": "Thermal",
     "duty": "Duty cycle",
     "loops": "Control loops",
+    "bus": "Bus supply",
 }
 _LABELS = {"pass": "PASS", "fail": "FAIL", "n/a": "n/a", "info": "info"}
 _TABLE_WIDTH = 100

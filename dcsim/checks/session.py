@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from collections.abc import Callable
 
+from dcsim.checks.brownout import brown_out_checks
 from dcsim.checks.duty import duty_checks
 from dcsim.checks.fuse import fuse_checks
 from dcsim.checks.loops import loop_checks
@@ -26,7 +27,7 @@ def run_checks(sc: Scenario, progress: Callable[[str, float], None] | None = Non
     Returns
     -------
     CheckReport
-        Verdicts in the order fuse, regeneration, thermal, duty, loops; the figures they name
+        Verdicts in the order fuse, regeneration, thermal, duty, loops, bus; the figures they name
         and an overview of the nominal run.
     """
     runs = run_all(sc, progress)
@@ -44,6 +45,7 @@ def run_checks(sc: Scenario, progress: Callable[[str, float], None] | None = Non
     verdicts += v
     figures |= f
     verdicts += loop_checks(sc)
+    verdicts += brown_out_checks(sc, runs)
     nominal = runs.result("nominal")
     if nominal is not None:
         from dcsim.results.plots import plot_overview

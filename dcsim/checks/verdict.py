@@ -36,7 +36,7 @@ class Verdict:
     name : str
         Stable identifier, e.g. ``"fuse.survives_start"`` (the key in ``verdicts.json``).
     group : str
-        ``"fuse"``, ``"regeneration"``, ``"thermal"``, ``"duty"`` or ``"loops"``.
+        ``"fuse"``, ``"regeneration"``, ``"thermal"``, ``"duty"``, ``"loops"`` or ``"bus"``.
     title : str
         What is checked, in words.
     status : str

@@ -338,9 +338,24 @@ def bridge_parameters(sc: Scenario):
     q[B.Q_C] = s.capacitance
     q[B.Q_ESR] = s.esr
     q[B.Q_REGEN] = 1.0 if s.regenerative else 0.0
+    q[B.Q_BMS_ICHG] = math.inf
+    q[B.Q_BMS_IDIS] = math.inf
+    q[B.Q_BMS_VFULL] = math.inf
+    q[B.Q_BMS_VRECLOSE] = -math.inf
+    q[B.Q_BMS_TRECLOSE] = math.inf
     if bat is not None:
         q[B.Q_BAT] = 1.0
         q[B.Q_BAT_Q] = bat.capacity
+        q[B.Q_BAT_R] = bat.resistance
+        for index, value in (
+            (B.Q_BMS_ICHG, bat.max_charge_current),
+            (B.Q_BMS_IDIS, bat.max_discharge_current),
+            (B.Q_BMS_VFULL, bat.full_voltage),
+            (B.Q_BMS_VRECLOSE, bat.reclose_voltage),
+            (B.Q_BMS_TRECLOSE, bat.reclose_time),
+        ):
+            if value is not None:
+                q[index] = value
     q[B.Q_RON] = br.on_resistance
     q[B.Q_VD] = br.diode_drop
     q[B.Q_TD] = br.dead_time

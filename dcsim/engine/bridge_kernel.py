@@ -32,8 +32,10 @@ grid of the nominal step). Each segment is advanced exactly by the matrix expone
 augmented matrix ``[[A, b], [0, 0]]`` (Moler & Van Loan), cached by regime and length (the
 segments of a period repeat while the duty does). State events -- the current reaching zero,
 the source diode blocking, the chopper comparator, the trip levels, stick/slip of the shaft,
-the peak current limit, the battery table's breakpoints, the fuse melting -- are located
-inside a segment by the Illinois method and the segment is split there.
+the peak current limit, the battery table's breakpoints, the fuse melting, the battery
+disconnect's limits (charge and discharge current, the terminal voltage ``OCV - R_bat i``) and
+its reclose level -- are located inside a segment by the Illinois method and the segment is
+split there. An open disconnect opens the supply line as a melted fuse does.
 
 References
 ----------
@@ -56,14 +58,18 @@ from numba import njit
 from dcsim.controllers.cascade import control_sample, copy_record
 from dcsim.controllers.layout import GREC, K_V_MEAS
 from dcsim.engine.bridge_layout import (
+    A_BMS_OPEN_TIME,
     A_BRAKE,
     A_BRAKE_PEAK_W,
     A_BRIDGE,
     A_BUS_MAX,
     A_BUS_MIN,
+    A_BUS_MIN_TIME,
+    A_BUS_RIPPLE,
     A_BYPASS_TIME,
     A_CACHE_MISSES,
     A_CHOP_AT,
+    A_CAP_RMS_PERIOD,
     A_COPPER,
     A_COUPLING,
     A_ESR,
@@ -76,12 +82,16 @@ from dcsim.engine.bridge_layout import (
     A_FUSE_MELT_TIME,
     A_FUSE_PEAK,
     A_I2T,
+    A_ICAP2,
     A_LIMIT_EVENTS,
     A_LOAD,
     A_LOCK,
     A_OCP_SINCE,
+    A_MARK_ICAP2,
     A_PEAK_I,
     A_PEAK_I_TIME,
+    A_PERIOD_BUS_MAX,
+    A_PERIOD_BUS_MIN,
     A_PERIODS,
     A_PRECHARGE,
     A_PULSE_T0,
@@ -98,6 +108,7 @@ from dcsim.engine.bridge_layout import (
     LEG_HIGH,
     LEG_LOW,
     LEG_OFF,
+    M_BMS,
     M_BRAKE,
     M_CHOP,
     M_FSIGN,
@@ -122,7 +133,13 @@ from dcsim.engine.bridge_layout import (
     Q_BAT_HI,
     Q_BAT_LO,
     Q_BAT_Q,
+    Q_BAT_R,
     Q_BLANK,
+    Q_BMS_ICHG,
+    Q_BMS_IDIS,
+    Q_BMS_TRECLOSE,
+    Q_BMS_VFULL,
+    Q_BMS_VRECLOSE,
     Q_BRAKE_OFF,
     Q_BRAKE_ON,
     Q_BRAKE_R,
@@ -180,6 +197,7 @@ from dcsim.engine.bridge_layout import (
     Q_VD,
     Q_VNOM,
     R_ARMATURE_V,
+    R_BATTERY_CONNECTED,
     R_BRAKE_CURRENT,
     R_BRIDGE_CURRENT,
     R_BRIDGE_STATE,
@@ -211,6 +229,10 @@ from dcsim.engine.bridge_layout import (
     STATUS_BATTERY_EMPTY,
     STATUS_NONFINITE,
     STATUS_OK,
+    TRIP_BMS_CHARGE,
+    TRIP_BMS_DISCHARGE,
+    TRIP_BMS_RECLOSE,
+    TRIP_BMS_VOLTAGE,
     TRIP_BUS_COLLAPSE,
     TRIP_BYPASS,
     TRIP_FUSE,
@@ -243,7 +265,7 @@ C_NG = 6  # number of guard rows (without the limit rows)
 C_RSN = 7  # the part of C_RB in the current-sense resistor [ohm]
 C_SGAIN = 8  # sensed current = C_SGAIN * i (1 in-line; the bridge gain g on the bus side)
 N_C = 9
-N_WORK = 19  # values per point kept by `point_values`
+N_WORK = 20  # values per point kept by `point_values`
 CACHE_SLOTS = 4096
 FORM_SLOTS = 256
 MAX_BP = 64  # schedule breakpoints per period beyond the grid
@@ -319,7 +341,7 @@ def compute_forms(md, q, forms, fsc):
     """Linear forms (node voltage, supply current, ...) and scalars of the present regime."""
     sigma = 1.0 if md[M_SIGMA] >= 0 else -1.0
     g, rb, vdrop, sens, rsn = connection(md[M_LEG_A], md[M_LEG_B], sigma, q)
-    open_line = md[M_OPEN] == 1 or md[M_MELTED] == 1
+    open_line = md[M_OPEN] == 1 or md[M_MELTED] == 1 or md[M_BMS] == 1
     rsrc = q[Q_RS] + (q[Q_PRE_R] if md[M_PRE] == 1 else 0.0)
     ls = q[Q_LS]
     esr = q[Q_ESR]
@@ -384,7 +406,9 @@ def _guard_rows(md, q, forms, fsc):
     """The guards of the regime as linear forms (rows ``F_G0 ...``), each >= 0 while it holds:
     stick/slip, current direction or the zero-current window, the source diode, the brake
     comparator, the trip levels, bus above zero, the pre-charge bypass level, the battery
-    table's breakpoints; then the two rows of the peak current limit, ``I_pk -+ i``."""
+    table's breakpoints, the battery disconnect (closed: its charge current, discharge current
+    and full-charge voltage; open: the bus above its reclose level); then the two rows of the
+    peak current limit, ``I_pk -+ i``."""
     n = F_G0
     for r in range(F_G0, N_F):
         for j in range(N_A):
@@ -409,7 +433,7 @@ def _guard_rows(md, q, forms, fsc):
                 forms[n, j] = -forms[F_DPLUS, j]
                 forms[n + 1, j] = forms[F_DMINUS, j]
             n += 2
-    if q[Q_REGEN] < 0.5 and md[M_MELTED] == 0:
+    if q[Q_REGEN] < 0.5 and md[M_MELTED] == 0 and md[M_BMS] == 0:
         if md[M_OPEN] == 1:
             for j in range(N_A):
                 forms[n, j] = forms[F_VN, j] - forms[F_VSRC, j]
@@ -465,12 +489,59 @@ def _guard_rows(md, q, forms, fsc):
             forms[n, S_SOC] = -1.0
             forms[n, S_ONE] = q[Q_BAT_HI]
             n += 1
+        if md[M_MELTED] == 0:
+            n = _disconnect_rows(md, q, forms, n)
     fsc[C_NG] = n - F_G0
     lim = F_G0 + MAX_G
     forms[lim, S_I] = -1.0
     forms[lim, S_ONE] = q[Q_IPK]
     forms[lim + 1, S_I] = 1.0
     forms[lim + 1, S_ONE] = q[Q_IPK]
+
+
+@njit(cache=True, error_model="numpy")
+def _disconnect_rows(md, q, forms, n):
+    """Guard rows of the battery disconnect from row ``n``; returns the next free row.
+
+    Closed: ``I_chg + i_s >= 0``, ``I_dis - i_s >= 0`` and ``V_full - (OCV - R_bat i_s) >= 0``
+    (the terminal voltage of the Thevenin battery, ``i_s`` the supply current, positive when
+    the battery discharges). Open: ``v_bus - V_reclose >= 0``.
+    """
+    if md[M_BMS] == 0:
+        if q[Q_BMS_ICHG] < math.inf:
+            for j in range(N_A):
+                forms[n, j] = forms[F_IS, j]
+            forms[n, S_ONE] += q[Q_BMS_ICHG]
+            n += 1
+        if q[Q_BMS_IDIS] < math.inf:
+            for j in range(N_A):
+                forms[n, j] = -forms[F_IS, j]
+            forms[n, S_ONE] += q[Q_BMS_IDIS]
+            n += 1
+        if q[Q_BMS_VFULL] < math.inf:
+            for j in range(N_A):
+                forms[n, j] = q[Q_BAT_R] * forms[F_IS, j] - forms[F_VSRC, j]
+            forms[n, S_ONE] += q[Q_BMS_VFULL]
+            n += 1
+    elif q[Q_BMS_VRECLOSE] > -math.inf:
+        for j in range(N_A):
+            forms[n, j] = forms[F_VN, j]
+        forms[n, S_ONE] -= q[Q_BMS_VRECLOSE]
+        n += 1
+    return n
+
+
+@njit(cache=True, error_model="numpy")
+def disconnect_cause(y, q, forms):
+    """Why the closed battery disconnect must open at ``y`` (a ``TRIP_BMS_*`` kind), or 0."""
+    isrc = _dot(forms[F_IS], y)
+    if -isrc >= q[Q_BMS_ICHG]:
+        return TRIP_BMS_CHARGE
+    if isrc >= q[Q_BMS_IDIS]:
+        return TRIP_BMS_DISCHARGE
+    if _dot(forms[F_VSRC], y) - q[Q_BAT_R] * isrc >= q[Q_BMS_VFULL]:
+        return TRIP_BMS_VOLTAGE
+    return 0
 
 
 @njit(cache=True, error_model="numpy")
@@ -491,7 +562,7 @@ def build_matrix(md, q, forms, fsc, m, bvec):
     m[S_W, S_ONE] = bvec[S_W]
     for j in range(N_A):
         m[S_VC, j] = forms[F_ICAP, j] / q[Q_C]
-    open_line = md[M_OPEN] == 1 or md[M_MELTED] == 1
+    open_line = md[M_OPEN] == 1 or md[M_MELTED] == 1 or md[M_BMS] == 1
     ls = q[Q_LS]
     if ls > 0.0 and not open_line:
         for j in range(N_A):
@@ -511,7 +582,7 @@ def mode_key(md):
     k = k * 3 + md[M_SIGMA] + 1
     k = k * 4 + md[M_LEG_A]
     k = k * 4 + md[M_LEG_B]
-    k = k * 2 + (1 if (md[M_OPEN] == 1 or md[M_MELTED] == 1) else 0)
+    k = k * 2 + (1 if (md[M_OPEN] == 1 or md[M_MELTED] == 1 or md[M_BMS] == 1) else 0)
     k = k * 2 + md[M_BRAKE]
     k = k * 2 + md[M_PRE]
     return k
@@ -600,6 +671,7 @@ def point_values(y, md, q, forms, fsc, work, row):
     work[row, 16] = vsrc
     work[row, 17] = fsc[C_GBR] * vn
     work[row, 18] = fsc[C_RSN] * i * i
+    work[row, 19] = icap * icap
 
 
 @njit(cache=True, error_model="numpy", inline="always")
@@ -623,6 +695,7 @@ def add_integrals(tau, t0, md, q, work, acc):
     for k in range(10):
         acc[_ACC_OF_WORK[k]] += w0 * (work[0, k] + work[2, k]) + wm * work[1, k]
     acc[A_SENSE] += w0 * (work[0, 18] + work[2, 18]) + wm * work[1, 18]
+    acc[A_ICAP2] += w0 * (work[0, 19] + work[2, 19]) + wm * work[1, 19]
     for r in range(1, 3):
         t = t0 + 0.5 * tau * r
         ia = math.sqrt(work[r, 0])
@@ -630,8 +703,14 @@ def add_integrals(tau, t0, md, q, work, acc):
             acc[A_PEAK_I] = ia
             acc[A_PEAK_I_TIME] = t
         acc[A_BUS_MAX] = max(acc[A_BUS_MAX], work[r, 11])
-        acc[A_BUS_MIN] = min(acc[A_BUS_MIN], work[r, 11])
+        if work[r, 11] < acc[A_BUS_MIN]:
+            acc[A_BUS_MIN] = work[r, 11]
+            acc[A_BUS_MIN_TIME] = t
         acc[A_BRAKE_PEAK_W] = max(acc[A_BRAKE_PEAK_W], work[r, 7])
+    # the bus extremes of the present period (the start too: an ESR steps the node at edges)
+    for r in range(3):
+        acc[A_PERIOD_BUS_MAX] = max(acc[A_PERIOD_BUS_MAX], work[r, 11])
+        acc[A_PERIOD_BUS_MIN] = min(acc[A_PERIOD_BUS_MIN], work[r, 11])
     # the chopper's power is largest just as it switches on, at the start of a sub-step
     acc[A_BRAKE_PEAK_W] = max(acc[A_BRAKE_PEAK_W], work[0, 7])
 
@@ -736,7 +815,25 @@ def update_modes(y, md, q, forms, fsc, t, acc, trips, ocv_soc, ocv_v):
         if changed:
             continue
         vn = _dot(forms[F_VN], y)
-        if q[Q_REGEN] < 0.5 and md[M_MELTED] == 0:
+        if q[Q_BAT] > 0.5 and md[M_MELTED] == 0:
+            if md[M_BMS] == 0:
+                kind = disconnect_cause(y, q, forms)
+                if kind != 0:
+                    md[M_BMS] = 1
+                    acc[A_BMS_OPEN_TIME] = t
+                    log_trip(trips, acc, t, kind, vn)
+                    continue
+            elif vn <= q[Q_BMS_VRECLOSE]:
+                # reclose unless the closed line would open again at once (then it stays
+                # open: the bus must fall further, or the reclose time comes)
+                md[M_BMS] = 0
+                compute_forms(md, q, forms, fsc)
+                if disconnect_cause(y, q, forms) == 0:
+                    log_trip(trips, acc, t, TRIP_BMS_RECLOSE, vn)
+                    continue
+                md[M_BMS] = 1
+                compute_forms(md, q, forms, fsc)
+        if q[Q_REGEN] < 0.5 and md[M_MELTED] == 0 and md[M_BMS] == 0:
             if md[M_OPEN] == 1:
                 if vn < _dot(forms[F_VSRC], y):
                     md[M_OPEN] = 0
@@ -1297,6 +1394,18 @@ def switching_energy(x, md, q, forms, fsc, n_edges, acc):
 
 
 @njit(cache=True, error_model="numpy")
+def close_period(acc, length, vn):
+    """End a period of ``length`` [s]: its RMS capacitor current and bus peak-to-peak into
+    the largest so far; start the next one's at the node voltage ``vn`` [V]."""
+    rms = math.sqrt(max(acc[A_ICAP2] - acc[A_MARK_ICAP2], 0.0) / length)
+    acc[A_CAP_RMS_PERIOD] = max(acc[A_CAP_RMS_PERIOD], rms)
+    acc[A_BUS_RIPPLE] = max(acc[A_BUS_RIPPLE], acc[A_PERIOD_BUS_MAX] - acc[A_PERIOD_BUS_MIN])
+    acc[A_MARK_ICAP2] = acc[A_ICAP2]
+    acc[A_PERIOD_BUS_MAX] = vn
+    acc[A_PERIOD_BUS_MIN] = vn
+
+
+@njit(cache=True, error_model="numpy")
 def write_row(x, md, q, forms, fsc, t, rec, row, acc, limit_flag, work):
     """Store the trace columns at ``x`` (``work``: scratch, row 0 is overwritten)."""
     point_values(x, md, q, forms, fsc, work, 0)
@@ -1329,6 +1438,7 @@ def write_row(x, md, q, forms, fsc, t, rec, row, acc, limit_flag, work):
     rec[R_LIMIT, row] = limit_flag
     rec[R_ENABLED, row] = 1.0 if bridge_enabled(md) else 0.0
     rec[R_SENSED, row] = fsc[C_SGAIN] * i
+    rec[R_BATTERY_CONNECTED, row] = 1.0 if (q[Q_BAT] > 0.5 and md[M_BMS] == 0) else 0.0
 
 
 @njit(cache=True, error_model="numpy")
@@ -1465,6 +1575,10 @@ def start_run(x, md, q, ev_t, ev_i, ev_v, counters, rec, acc, trips, ocv_soc, oc
     point_values(x, md, q, forms, fsc, work, 0)
     acc[A_BUS_MAX] = work[0, 11]
     acc[A_BUS_MIN] = work[0, 11]
+    acc[A_BUS_MIN_TIME] = 0.0
+    acc[A_PERIOD_BUS_MAX] = work[0, 11]
+    acc[A_PERIOD_BUS_MIN] = work[0, 11]
+    acc[A_BMS_OPEN_TIME] = -1.0
     acc[A_PEAK_I] = abs(x[S_I])
     acc[A_FUSE_MELT_TIME] = -1.0
     acc[A_FORCE_START] = -math.inf
@@ -1538,6 +1652,24 @@ def run_periods(x, md, q, period, n_grid, n_sub, duration, p_first, p_last, ev_t
         if t_p >= duration * (1.0 - 1e-15):
             break
         acc[A_PERIODS] += 1.0
+        if p > 0:
+            close_period(acc, period, _dot(forms[F_VN], x))
+        # the battery disconnect recloses by time, checked at each period start
+        if (
+            md[M_BMS] == 1
+            and q[Q_BMS_TRECLOSE] < math.inf
+            and t_p >= acc[A_BMS_OPEN_TIME] + q[Q_BMS_TRECLOSE] * (1.0 - 1e-12)
+        ):
+            md[M_BMS] = 0
+            carry[0] = 0
+            compute_forms(md, q, forms, fsc)
+            log_trip(trips, acc, t_p, TRIP_BMS_RECLOSE, _dot(forms[F_VN], x))
+            st = update_modes(x, md, q, forms, fsc, t_p, acc, trips, ocv_soc, ocv_v)
+            if st == -1:
+                genbox[0] += 1
+            elif st != STATUS_OK:
+                status = st
+                break
         # auto-restart after a trip, checked at each period start
         if (
             md[M_TRIP] == 1
@@ -1602,7 +1734,8 @@ def run_periods(x, md, q, period, n_grid, n_sub, duration, p_first, p_last, ev_t
                 carry[0] = 0
                 # the forms of the new leg states, from a small cache (they repeat every
                 # period); the other modes are still right if every guard holds at x
-                fk = ((mode_key(md) * 4 + md[M_OCP] + 1) * 2 + md[M_TRIP]) * 2 + md[M_MELTED]
+                fk = (((mode_key(md) * 4 + md[M_OCP] + 1) * 2 + md[M_TRIP]) * 2 + md[M_MELTED]) * 2
+                fk += md[M_BMS]
                 fs_ = (fk ^ (fk >> 7) ^ (fk >> 14)) & (FORM_SLOTS - 1)
                 # (averaged legs depend on the modulation, which a closed loop changes)
                 if fcache_key[fs_] == fk and fcache_gen[fs_] == genbox[0] and la != LEG_AVG:

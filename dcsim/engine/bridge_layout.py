@@ -86,7 +86,13 @@ Q_OCP_DG = 61  # deglitch time [s]
 Q_OCP_RETRY = 62  # 1: retry after Q_OCP_RT, 0: latch
 Q_OCP_RT = 63  # retry time [s]
 Q_TS = 64  # static (breakaway) friction [N*m]; 0: equal to Q_TC (breakaway = max of both)
-N_Q = 65
+Q_BAT_R = 65  # battery internal resistance alone [ohm] (part of Q_RS)
+Q_BMS_ICHG = 66  # battery disconnect: largest charge current [A] (inf: no limit)
+Q_BMS_IDIS = 67  # ... largest discharge current [A] (inf: no limit)
+Q_BMS_VFULL = 68  # ... largest terminal voltage OCV - R_bat i [V] (inf: no limit)
+Q_BMS_VRECLOSE = 69  # ... recloses when the bus falls below this voltage [V] (-inf: not)
+Q_BMS_TRECLOSE = 70  # ... recloses this long after opening [s] (inf: not)
+N_Q = 71
 
 # Discrete modes (int64)
 M_STUCK = 0  # shaft held at zero speed
@@ -103,7 +109,8 @@ M_SEG = 10  # battery table segment
 M_CHOP = 11  # current comparator: 0 idle, 1 tripped (decay pending), 2 decaying
 M_OCP = 12  # over-current: 0 below, +-1 above (deglitch running, sign of the sensed current),
 #             2 tripped
-N_M = 13
+M_BMS = 13  # battery disconnect open: the supply line is open until it recloses
+N_M = 14
 
 LEG_OFF = 0  # both switches of the leg off (its diodes conduct, or nothing)
 LEG_LOW = 1
@@ -146,7 +153,15 @@ A_FORCE_END = 31
 A_PULSE_T0 = 32  # when the present drive pulse started [s]
 A_OCP_SINCE = 33  # when the sensed current rose above the over-current level [s]
 A_SENSE = 34  # energy in the current-sense resistor [J]
-N_ACC = 35
+A_ICAP2 = 35  # integral of the capacitor current squared [A^2*s]
+A_BUS_MIN_TIME = 36  # when the bus voltage was lowest [s]
+A_MARK_ICAP2 = 37  # A_ICAP2 at the start of the present period [A^2*s]
+A_CAP_RMS_PERIOD = 38  # largest RMS capacitor current over one period [A]
+A_PERIOD_BUS_MAX = 39  # bus voltage extremes within the present period [V]
+A_PERIOD_BUS_MIN = 40
+A_BUS_RIPPLE = 41  # largest peak-to-peak bus voltage over one period [V]
+A_BMS_OPEN_TIME = 42  # when the battery disconnect last opened [s] (-1: never)
+N_ACC = 43
 
 # Trace columns
 R_TIME = 0
@@ -170,7 +185,8 @@ R_SOC = 17
 R_LIMIT = 18
 R_ENABLED = 19
 R_SENSED = 20
-N_REC = 21
+R_BATTERY_CONNECTED = 21
+N_REC = 22
 
 RECORD_NAMES = layout.RECORD_NAMES + (
     "duty",
@@ -183,6 +199,7 @@ RECORD_NAMES = layout.RECORD_NAMES + (
     "current_limit_active",
     "bridge_enabled",
     "sensed_current_A",
+    "battery_connected",
 )
 """The core kernel's columns (same order, same meaning), then the power stage's."""
 
@@ -194,6 +211,10 @@ TRIP_FUSE = 4
 TRIP_BYPASS = 5
 TRIP_BUS_COLLAPSE = 6
 TRIP_OVER_CURRENT = 7
+TRIP_BMS_CHARGE = 8  # battery disconnect opened: charge current above its limit
+TRIP_BMS_VOLTAGE = 9  # ... terminal voltage above the full-charge voltage
+TRIP_BMS_DISCHARGE = 10  # ... discharge current above its limit
+TRIP_BMS_RECLOSE = 11  # ... reclosed
 MAX_TRIPS = 256
 MAX_CHOPS = 100_000  # rows of the comparator's log: decay start, current there, end, current
 

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import math
 from collections.abc import Callable
 
 import numpy as np
@@ -22,7 +23,17 @@ TRIP_NAMES = {
     B.TRIP_BYPASS: "precharge_bypassed",
     B.TRIP_BUS_COLLAPSE: "bus_collapsed",
     B.TRIP_OVER_CURRENT: "over_current",
+    B.TRIP_BMS_CHARGE: "battery_disconnect_charge_current",
+    B.TRIP_BMS_VOLTAGE: "battery_disconnect_full_voltage",
+    B.TRIP_BMS_DISCHARGE: "battery_disconnect_discharge_current",
+    B.TRIP_BMS_RECLOSE: "battery_reconnect",
 }
+DISCONNECT_CAUSES = {
+    "battery_disconnect_charge_current": "charge_current",
+    "battery_disconnect_full_voltage": "full_voltage",
+    "battery_disconnect_discharge_current": "discharge_current",
+}
+"""Trip-log kinds of the battery disconnect opening, and the cause each names."""
 
 
 def run_bridge_inputs(bi: BridgeInputs, progress: Callable[[float], None] | None = None):
@@ -131,6 +142,34 @@ def chop_summary(chops: np.ndarray) -> dict:
     return out
 
 
+def capacitor_stress(bi: BridgeInputs, acc) -> dict[str, float]:
+    """The bus capacitor's stress over the run [SI].
+
+    ``capacitor_rms_current_A``: ``sqrt(int i_C^2 dt / T)`` over the run (Simpson's rule on
+    each segment, like the energy terms); ``capacitor_esr_power_W``: the ESR's mean heating,
+    ``energy_capacitor_esr_J / T`` (= ESR I_rms^2); ``bus_ripple_voltage_V``: the largest
+    peak-to-peak bus voltage over one kernel period (a PWM period of the switching model; a
+    trace row, or a controller sample in closed loop, of the averaged one); switching model
+    only, ``capacitor_max_period_rms_current_A``: the largest RMS over one PWM period.
+    """
+    duration = bi.duration_s
+    period = bi.period_s
+    # the last period is closed here (the kernel closes each one at the next one's start)
+    last = duration - (bi.n_periods - 1) * period
+    ripple = max(acc[B.A_BUS_RIPPLE], acc[B.A_PERIOD_BUS_MAX] - acc[B.A_PERIOD_BUS_MIN])
+    out = {
+        "capacitor_rms_current_A": math.sqrt(max(acc[B.A_ICAP2], 0.0) / duration),
+        "capacitor_esr_power_W": float(acc[B.A_ESR]) / duration,
+        "bus_ripple_voltage_V": float(ripple),
+    }
+    if bi.switching:
+        peak = float(acc[B.A_CAP_RMS_PERIOD])
+        if last >= period * (1.0 - 1e-9):
+            peak = max(peak, math.sqrt(max(acc[B.A_ICAP2] - acc[B.A_MARK_ICAP2], 0.0) / last))
+        out["capacitor_max_period_rms_current_A"] = peak
+    return out
+
+
 def bridge_summary(sc, bi: BridgeInputs, acc, xf, qf, trips, chops=None) -> dict:
     """The summary of a bridge-model run (SI numbers; ``trips`` a list of dicts)."""
     summary: dict = {
@@ -142,8 +181,10 @@ def bridge_summary(sc, bi: BridgeInputs, acc, xf, qf, trips, chops=None) -> dict
         "final_position_rad": float(xf[B.S_TH]),
         "peak_bus_voltage_V": float(acc[B.A_BUS_MAX]),
         "min_bus_voltage_V": float(acc[B.A_BUS_MIN]),
+        "min_bus_voltage_time_s": float(acc[B.A_BUS_MIN_TIME]),
     }
     summary.update(bridge_energy_account(bi, acc, xf, qf))
+    summary.update(capacitor_stress(bi, acc))
     check_finite_totals(sc.source, summary)
     n = int(trips[0, 0])
     log = []
@@ -175,6 +216,17 @@ def bridge_summary(sc, bi: BridgeInputs, acc, xf, qf, trips, chops=None) -> dict
     if sc.battery is not None:
         summary["initial_state_of_charge"] = float(bi.state0[B.S_SOC])
         summary["final_state_of_charge"] = float(xf[B.S_SOC])
+        if sc.battery.has_disconnect:
+            summary["battery_disconnects"] = [
+                {"time_s": e["time_s"], "cause": DISCONNECT_CAUSES[e["kind"]],
+                 "bus_voltage_V": e["bus_voltage_V"]}
+                for e in log
+                if e["kind"] in DISCONNECT_CAUSES
+            ]  # fmt: skip
+            summary["battery_reconnects"] = [e for e in log if e["kind"] == "battery_reconnect"]
+            summary["battery_connected_at_end"] = bool(
+                len(summary["battery_disconnects"]) == len(summary["battery_reconnects"])
+            )
     if sc.precharge is not None:
         t_b = float(acc[B.A_BYPASS_TIME])
         summary["precharge_bypass_time_s"] = t_b if t_b >= 0.0 else None

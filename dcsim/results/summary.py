@@ -159,10 +159,10 @@ def format_summary(summary: Mapping[str, Any]) -> str:
     if speed is not None and math.isfinite(float(speed)):
         speed_text += f"  ({_num(float(speed) / RAD_S_PER_RPM, 'rpm')})"
     row("final speed", speed_text)
-    row(
-        "bus voltage",
-        f"min {_num(get('min_bus_voltage_V'), 'V')}   max {_num(get('peak_bus_voltage_V'), 'V')}",
-    )
+    bus_text = f"min {_num(get('min_bus_voltage_V'), 'V')}"
+    if get("min_bus_voltage_time_s") is not None:
+        bus_text += f" at {_time(get('min_bus_voltage_time_s'))}"
+    row("bus voltage", bus_text + f"   max {_num(get('peak_bus_voltage_V'), 'V')}")
 
     if get("bridge_model") is not None:
         _power_stage_rows(summary, row)
@@ -256,6 +256,20 @@ def _power_stage_rows(summary: Mapping[str, Any], row) -> None:
             row("fuse", f"intact; peak heat {frac} of melting")
     if get("fuse_warning"):
         row("fuse model", str(get("fuse_warning")))
+    if get("capacitor_rms_current_A") is not None:
+        text = f"{_num(get('capacitor_rms_current_A'), 'A')} over the run"
+        if get("capacitor_max_period_rms_current_A") is not None:
+            text += f", {_num(get('capacitor_max_period_rms_current_A'), 'A')} in one period"
+        row("bus capacitor RMS current", text)
+        if get("capacitor_esr_power_W"):
+            row("bus capacitor ESR heating (mean)", _num(get("capacitor_esr_power_W"), "W"))
+        row("bus ripple (largest peak-to-peak)", _num(get("bus_ripple_voltage_V"), "V"))
+    changes = [
+        ("battery disconnected (" + str(e["cause"]).replace("_", " ") + ")", e)
+        for e in get("battery_disconnects") or []
+    ] + [("battery reconnected", e) for e in get("battery_reconnects") or []]
+    for what, e in sorted(changes, key=lambda c: c[1]["time_s"]):
+        row(what, f"at {_time(e['time_s'])}, bus {_num(e['bus_voltage_V'], 'V')}")
     if get("final_state_of_charge") is not None:
         row(
             "battery state of charge",

@@ -1303,6 +1303,40 @@ def _power_stage_problem(
             f"expected a state of charge from 0 to 1, found "
             f"{show('battery.initial_state_of_charge')}",
         )
+    if "battery" in present:
+        return _disconnect_problem(state, show)
+    return None
+
+
+def _disconnect_problem(state: dict[str, Any], show: _Show) -> _Problem:
+    """Rules of the battery-management disconnect's keys."""
+    opening = [
+        k
+        for k in ("max_charge_current", "max_discharge_current", "full_voltage")
+        if state[f"battery.{k}"] is not None
+    ]
+    reclosing = [
+        k for k in ("reclose_voltage", "reclose_time") if state[f"battery.{k}"] is not None
+    ]
+    if reclosing and not opening:
+        return (
+            f"battery.{reclosing[0]}",
+            "expected max_charge_current, max_discharge_current or full_voltage in [battery] "
+            f"for a disconnect to reclose, found battery.{reclosing[0]} alone",
+        )
+    full, reclose = state["battery.full_voltage"], state["battery.reclose_voltage"]
+    if full is not None and reclose is not None and not reclose < full:
+        return (
+            "battery.reclose_voltage",
+            f"expected a reclose voltage below battery.full_voltage ({show('battery.full_voltage')}"
+            f"), found {show('battery.reclose_voltage')}",
+        )
+    if opening and state["supply.inductance"] > 0.0:
+        return (
+            "supply.inductance",
+            "expected supply.inductance = 0 with a battery disconnect (opening the line under "
+            f"an inductor's current is not modelled), found {show('supply.inductance')}",
+        )
     return None
 
 

@@ -306,6 +306,11 @@ KEYS: dict[str, dict[str, KeySpec]] = {
         "resistance": _q("ohm", "a resistance", "15 mohm", default=0.0),
         "capacity": _q("A*s", "a charge", "40 A*h", constraint="positive"),
         "initial_state_of_charge": _q("", "a fraction from 0 to 1", "0.9", default=1.0),
+        "max_charge_current": _q("A", "a current", "5 A", default=None, constraint="positive"),
+        "max_discharge_current": _q("A", "a current", "60 A", default=None, constraint="positive"),
+        "full_voltage": _q("V", "a voltage", "14.4 V", default=None, constraint="positive"),
+        "reclose_voltage": _q("V", "a voltage", "13.2 V", default=None, constraint="positive"),
+        "reclose_time": _q("s", "a time", "500 ms", default=None, constraint="positive"),
     },
     "fuse": {
         "rated_current": _q("A", "a current", "5 A", constraint="positive"),
@@ -512,6 +517,7 @@ KEYS: dict[str, dict[str, KeySpec]] = {
         "min_gain_margin": _q(
             "dB", "a gain ratio in dB", "6 dB", default=6.0, constraint="positive"
         ),
+        "brown_out_voltage": _q("V", "a voltage", "9 V", default=None, constraint="positive"),
     },
     "about": {
         "title": KeySpec(None, kind="text", default="", noun="a text", example="'Winch'"),
@@ -904,12 +910,37 @@ class Battery:
         Capacity [C] (the file may give it in A*h).
     initial_state_of_charge : float
         [-], 1 = full.
+    max_charge_current : float or None
+        The battery-management disconnect opens when the charge current exceeds this [A].
+    max_discharge_current : float or None
+        ... when the discharge current exceeds this [A].
+    full_voltage : float or None
+        ... when the terminal voltage ``OCV - R i`` exceeds this full-charge voltage [V].
+    reclose_voltage : float or None
+        The open disconnect recloses when the bus voltage falls to this level [V].
+    reclose_time : float or None
+        ... or this long after it opened [s] (checked at the start of each kernel period: a
+        PWM period, or a trace row / controller sample of the averaged model). Neither: it
+        stays open.
     """
 
     open_circuit_voltage: tuple[tuple[float, float], ...]
     capacity: float
     resistance: float = 0.0
     initial_state_of_charge: float = 1.0
+    max_charge_current: float | None = None
+    max_discharge_current: float | None = None
+    full_voltage: float | None = None
+    reclose_voltage: float | None = None
+    reclose_time: float | None = None
+
+    @property
+    def has_disconnect(self) -> bool:
+        """Whether a battery-management disconnect is given (any of its opening limits)."""
+        return any(
+            v is not None
+            for v in (self.max_charge_current, self.max_discharge_current, self.full_voltage)
+        )
 
     def ocv_at(self, soc: float) -> float:
         """Open-circuit voltage at a state of charge [V] (linear, extended at the ends)."""
@@ -1330,6 +1361,8 @@ class Checks:
         [deg]
     min_gain_margin : float
         [dB]
+    brown_out_voltage : float or None
+        The controller's brown-out threshold [V]: the bus must stay above it.
     """
 
     fuse_margin: float = 0.75
@@ -1345,6 +1378,7 @@ class Checks:
     peak_current: float | None = None
     min_phase_margin: float = 45.0
     min_gain_margin: float = 6.0
+    brown_out_voltage: float | None = None
 
 
 @dataclass(frozen=True)
