@@ -71,7 +71,9 @@ Q_PRE_V = 46  # bypass when the bus reaches this voltage [V] (inf: by time only)
 Q_FUSE = 47  # 1 with a fuse in the supply line
 Q_FUSE_IMIN = 48  # minimum melting current [A]
 Q_FUSE_TAU = 49  # heating time constant [s]
-N_Q = 50
+Q_TR = 50  # switch turn-on transition time (rise time) [s] (0: no transition-time loss)
+Q_TF = 51  # switch turn-off transition time (fall time) [s]
+N_Q = 52
 
 # Discrete modes (int64)
 M_STUCK = 0  # shaft held at zero speed
@@ -122,7 +124,9 @@ A_TRIP_TIME = 24  # time of the last trip [s]
 A_BYPASS_TIME = 25  # when the pre-charge resistor was bypassed [s] (-1: not yet)
 A_CACHE_MISSES = 26
 A_PERIODS = 27
-N_ACC = 28
+A_SWITCH_LOSS = 28  # the switching part of A_BRIDGE [J]
+A_RIPPLE_LAST = 29  # current peak-to-peak over the last complete PWM period [A] (-1: none)
+N_ACC = 30
 
 # Trace columns
 R_TIME = 0
