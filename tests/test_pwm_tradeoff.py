@@ -182,6 +182,23 @@ def test_switching_loss_from_the_transition_times(pwm, volts):
     assert s["bridge_switching_loss_W"] == pytest.approx(s["bridge_switching_loss_J"] / T_END)
 
 
+def test_with_dead_time_the_turn_on_comes_after_it():
+    # Bipolar, i > 0, dead time t_d: at each edge both legs turn off first; the current then
+    # flows through A's lower and B's upper diode (the armature sees -V) until the incoming
+    # switches close. So the pulse is +V for D T - t_d and -V for the rest, the hard turn-ons
+    # close at the valley of that waveform, the turn-offs open at its peak (the same
+    # reasoning as above, Mohan, Undeland & Robbins sec. 2-5, from memory; the dead-time
+    # waveform: their blanking-time discussion, full-bridge dc-dc converter chapter).
+    t_d = 1e-6
+    p_sw, _, v_bus, _ = window(bridge_extra=TIMES + f'\ndead_time = "{t_d} s"')
+    d = 0.75
+    t = 1.0 / F_PWM
+    _, lo, hi, _ = periodic_rl([v_bus, -v_bus], [d * t - t_d, (1 - d) * t + t_d], R_ARM, L_ARM)
+    # the bus moves by 2e-5 within a period (above): 1e-4. (Booking the turn-on as the dead
+    # time starts, at a current (V + R i) t_d / L = 35 mA higher, would be 4.5e-4 off.)
+    assert p_sw == pytest.approx(v_bus * (T_RISE * lo + T_FALL * hi) * F_PWM, rel=1e-4)
+
+
 def test_switching_loss_is_proportional_to_the_frequency():
     # Same operating point, three PWM frequencies, equal rise and fall times: P = V t (i_min
     # + i_max) f. Source: Mohan, Undeland & Robbins (above), P_s proportional to f_s.

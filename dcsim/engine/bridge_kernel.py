@@ -1175,8 +1175,9 @@ def switching_energy(x, md, q, forms, fsc, n_edges, acc, old_a, old_b):
     (``t_r``), high -> low turns it off onto the diode (``t_f``). With the current flowing
     into the leg the lower switch is the hard one: low -> high turns it off (``t_f``),
     high -> low turns it on (``t_r``). The other switch of the leg changes state while its
-    own diode carries the current (no loss). With dead time the event is booked when the leg
-    leaves its state (the start of the dead time), not when the incoming switch closes.
+    own diode carries the current (no loss). So a switch that carried the current and opens
+    loses ``t_f``, one that takes the current over as it closes loses ``t_r``: with dead
+    time, a turn-off is booked as the leg enters the dead time, a turn-on as it leaves it.
 
     Parameters
     ----------
@@ -1189,7 +1190,8 @@ def switching_energy(x, md, q, forms, fsc, n_edges, acc, old_a, old_b):
     forms, fsc : ndarray
         Linear forms and scalars of the new regime (the bus node voltage ``V_bus`` [V]).
     n_edges : int
-        Leg transitions at this instant (the per-transition energy).
+        Leg transitions at this instant (the per-transition energy; the transition times
+        look at the legs' old and new states instead).
     acc : ndarray
         Accumulators: ``A_BRIDGE`` and ``A_SWITCH_LOSS`` [J] grow by the energy.
     old_a, old_b : int
@@ -1208,14 +1210,15 @@ def switching_energy(x, md, q, forms, fsc, n_edges, acc, old_a, old_b):
         for leg in range(2):
             old = old_a if leg == 0 else old_b
             new = md[M_LEG_A] if leg == 0 else md[M_LEG_B]
-            if old == new or new == LEG_AVG or old == LEG_AVG or old == LEG_OFF:
-                continue  # no change, or the end of a dead time (booked at its start)
-            if new == LEG_OFF:
-                up = old == LEG_LOW
-            else:
-                up = new == LEG_HIGH
+            if old == new or new == LEG_AVG or old == LEG_AVG:
+                continue
+            # the switch that carries this current forward: the upper one (a high leg) when
+            # the current flows out of the leg, the lower one when it flows in
             out_of_leg = i > 0.0 if leg == 0 else i < 0.0
-            e += vi * (q[Q_TR] if up == out_of_leg else q[Q_TF])
+            if old != LEG_OFF and (old == LEG_HIGH) == out_of_leg:
+                e += vi * q[Q_TF]  # it opens: hard turn-off onto the opposite diode
+            if new != LEG_OFF and (new == LEG_HIGH) == out_of_leg:
+                e += vi * q[Q_TR]  # it closes: hard turn-on against the opposite diode
     if e <= 0.0:
         return
     stored = 0.5 * q[Q_C] * x[S_VC] ** 2
@@ -1388,6 +1391,7 @@ def run_periods(x, md, q, period, n_grid, n_sub, duration, p_first, p_last, ev_t
     row = counters[1]
     h = period / n_grid
     switching = q[Q_SWITCHING] > 0.5
+    timed = q[Q_TR] > 0.0 or q[Q_TF] > 0.0  # transition-time losses: every leg change counts
     status = STATUS_OK
     t = p_first * period
     compute_forms(md, q, forms, fsc)
@@ -1470,7 +1474,7 @@ def run_periods(x, md, q, period, n_grid, n_sub, duration, p_first, p_last, ev_t
                     fcache_sc[fs_] = fsc
                     fcache_key[fs_] = fk
                     fcache_gen[fs_] = genbox[0]
-                if bedges[k] > 0 and switching:
+                if switching and (bedges[k] > 0 or timed):
                     switching_energy(x, md, q, forms, fsc, bedges[k], acc, old_a, old_b)
                     acc[A_SWITCHINGS] += bedges[k]
                 held = md[M_SIGMA] == 0 and fsc[C_SENS] < 0.5  # no longer held at zero

@@ -250,7 +250,9 @@ def _power_stage_rows(summary: Mapping[str, Any], row) -> None:
     if get("current_ripple_A") is not None:
         row("current ripple (last PWM period, p-p)", _num(get("current_ripple_A"), "A", digits=4))
     if get("pwm_warning"):
-        row("PWM frequency", str(get("pwm_warning")))
+        period = get("pwm_period_s")
+        shown = _num(1e-3 / float(period), "kHz", digits=4) if period else "n/a"
+        row("PWM frequency", f"{shown}: in the audible band (below 20 kHz)")
     if get("energy_to_brake_resistor_J"):
         row("peak brake resistor power", _num(get("peak_brake_power_W"), "W"))
     events = list(get("trips") or []) + list(get("restarts") or [])
