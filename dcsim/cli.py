@@ -180,9 +180,13 @@ def _check_out_dir(out_dir: Path) -> None:
 
 def _warn_catalogue(scenario: Scenario) -> None:
     """One ``dcsim: warning:`` line on stderr per catalogue figure the motor model disagrees
-    with by more than 5 % (``[motor]`` catalogue data; see ``dcsim motor``)."""
+    with by more than 5 % (``[motor]`` catalogue data; see ``dcsim motor``), and one for a
+    switching bridge's PWM frequency in the audible band."""
     for message in getattr(scenario.motor, "catalogue_warnings", ()):
         _write(sys.stderr, f"{_PROG}: warning: {scenario.source}: motor: {message}\n")
+    audible = scenario.bridge.audible_warning
+    if audible is not None:
+        _write(sys.stderr, f"{_PROG}: warning: {scenario.source}: {audible}\n")
 
 
 def _run_and_write(given: str, label: str, out_dir: Path) -> int:

@@ -370,6 +370,8 @@ def bridge_parameters(sc: Scenario):
     q[B.Q_ESW] = br.switching_energy
     q[B.Q_ESW_V] = br.switching_energy_voltage
     q[B.Q_ESW_I] = br.switching_energy_current
+    q[B.Q_TR] = br.rise_time
+    q[B.Q_TF] = br.fall_time
     q[B.Q_IPK] = br.trip_current_A
     q[B.Q_BLANK] = br.blanking_time
     # the decay of the PWM off-time and after the current comparator trips

@@ -37,6 +37,11 @@ disconnect's limits (charge and discharge current, the terminal voltage ``OCV - 
 its reclose level -- are located inside a segment by the Illinois method and the segment is
 split there. An open disconnect opens the supply line as a melted fuse does.
 
+The switching loss of each leg transition (a per-transition energy, or the switch's rise and
+fall times: see :func:`switching_energy`) is taken from the bus capacitor at the transition
+and booked apart from the conduction loss; the current's range over each PWM period (at the
+segment ends, which hold every switching instant) gives the ripple of the last complete one.
+
 References
 ----------
 .. [1] N. Mohan, T. M. Undeland and W. P. Robbins, *Power Electronics: Converters,
@@ -95,10 +100,12 @@ from dcsim.engine.bridge_layout import (
     A_PERIODS,
     A_PRECHARGE,
     A_PULSE_T0,
+    A_RIPPLE_LAST,
     A_SENSE,
     A_SOURCE_LOSS,
     A_SPLITS,
     A_SUPPLY,
+    A_SWITCH_LOSS,
     A_SWITCHINGS,
     A_TRIP_TIME,
     EV_BYPASS,
@@ -187,9 +194,11 @@ from dcsim.engine.bridge_layout import (
     Q_TC,
     Q_TCD,
     Q_TD,
+    Q_TF,
     Q_TL,
     Q_TOFF,
     Q_TONMIN,
+    Q_TR,
     Q_TS,
     Q_UNIPOLAR,
     Q_UV,
@@ -1378,19 +1387,79 @@ def grid_schedule(n_grid, period, leg, bt, ba, bb, blim, bgrid, bedges):
 
 
 @njit(cache=True, error_model="numpy")
-def switching_energy(x, md, q, forms, fsc, n_edges, acc):
-    """Take the switching loss of ``n_edges`` leg transitions from the bus capacitor."""
-    if q[Q_ESW] <= 0.0 or n_edges == 0:
+def switching_energy(x, md, q, forms, fsc, n_edges, acc, old_a, old_b):
+    """Take the switching loss of the leg transitions at this instant from the bus capacitor.
+
+    Two ways to give the loss (the loader accepts one):
+
+    - a per-transition energy ``E_sw`` [J] (``Q_ESW``): ``n_edges E_sw``, scaled linearly
+      with the bus voltage and the current when their reference values are given;
+    - the switch's transition times (``Q_TR`` turn-on, ``Q_TF`` turn-off [s]): the linearised
+      hard-switching figure of an inductive (clamped) leg, ``W_on = V_bus |i| t_r / 2`` for a
+      switch turning on and ``W_off = V_bus |i| t_f / 2`` for one turning off, so that a
+      leg's turn-on plus turn-off in each PWM period costs ``V_bus |i| (t_r + t_f) / 2``
+      (Mohan, Undeland & Robbins, *Power Electronics*, 3rd ed., Wiley 2003, sec. 2-5,
+      eqs. (2-6) to (2-8): ``P_s = V_d I_o f_s (t_c(on) + t_c(off)) / 2`` -- section and
+      equation numbers from memory).
+
+    How the times map onto a leg's transitions: every transition of a leg carrying current
+    is one hard event. With the current flowing out of the leg into the armature (leg A for
+    ``i > 0``, leg B for ``i < 0``) the upper switch conducts when the leg is high and the
+    lower diode when it is low: low -> high turns the upper switch on against the diode
+    (``t_r``), high -> low turns it off onto the diode (``t_f``). With the current flowing
+    into the leg the lower switch is the hard one: low -> high turns it off (``t_f``),
+    high -> low turns it on (``t_r``). The other switch of the leg changes state while its
+    own diode carries the current (no loss). So a switch that carried the current and opens
+    loses ``t_f``, one that takes the current over as it closes loses ``t_r``: with dead
+    time, a turn-off is booked as the leg enters the dead time, a turn-on as it leaves it.
+
+    Parameters
+    ----------
+    x : ndarray
+        Augmented state; its capacitor voltage ``x[S_VC]`` [V] gives up the energy.
+    md : ndarray
+        Modes, holding the legs' new states.
+    q : ndarray
+        Parameters (``Q_ESW``, ``Q_ESW_V`` [V], ``Q_ESW_I`` [A], ``Q_TR``, ``Q_TF`` [s]).
+    forms, fsc : ndarray
+        Linear forms and scalars of the new regime (the bus node voltage ``V_bus`` [V]).
+    n_edges : int
+        Leg transitions at this instant (the per-transition energy; the transition times
+        look at the legs' old and new states instead).
+    acc : ndarray
+        Accumulators: ``A_BRIDGE`` and ``A_SWITCH_LOSS`` [J] grow by the energy.
+    old_a, old_b : int
+        The legs' states before this instant.
+    """
+    e = 0.0
+    if q[Q_ESW] > 0.0 and n_edges > 0:
+        e = q[Q_ESW] * n_edges
+        if q[Q_ESW_I] > 0.0:
+            e *= abs(x[S_I]) / q[Q_ESW_I]
+        if q[Q_ESW_V] > 0.0:
+            e *= max(_dot(forms[F_VN], x), 0.0) / q[Q_ESW_V]
+    elif q[Q_TR] > 0.0 or q[Q_TF] > 0.0:
+        i = x[S_I]
+        vi = 0.5 * max(_dot(forms[F_VN], x), 0.0) * abs(i)
+        for leg in range(2):
+            old = old_a if leg == 0 else old_b
+            new = md[M_LEG_A] if leg == 0 else md[M_LEG_B]
+            if old == new or new == LEG_AVG or old == LEG_AVG:
+                continue
+            # the switch that carries this current forward: the upper one (a high leg) when
+            # the current flows out of the leg, the lower one when it flows in
+            out_of_leg = i > 0.0 if leg == 0 else i < 0.0
+            if old != LEG_OFF and (old == LEG_HIGH) == out_of_leg:
+                e += vi * q[Q_TF]  # it opens: hard turn-off onto the opposite diode
+            if new != LEG_OFF and (new == LEG_HIGH) == out_of_leg:
+                e += vi * q[Q_TR]  # it closes: hard turn-on against the opposite diode
+    if e <= 0.0:
         return
-    e = q[Q_ESW] * n_edges
-    if q[Q_ESW_I] > 0.0:
-        e *= abs(x[S_I]) / q[Q_ESW_I]
-    if q[Q_ESW_V] > 0.0:
-        e *= max(_dot(forms[F_VN], x), 0.0) / q[Q_ESW_V]
     stored = 0.5 * q[Q_C] * x[S_VC] ** 2
     e = min(e, stored)
     x[S_VC] = math.sqrt(max(x[S_VC] ** 2 - 2.0 * e / q[Q_C], 0.0))
     acc[A_BRIDGE] += e
+    acc[A_SWITCH_LOSS] += e
 
 
 @njit(cache=True, error_model="numpy")
@@ -1641,6 +1710,7 @@ def run_periods(x, md, q, period, n_grid, n_sub, duration, p_first, p_last, ev_t
     row = counters[1]
     h = period / n_grid
     switching = q[Q_SWITCHING] > 0.5
+    timed = q[Q_TR] > 0.0 or q[Q_TF] > 0.0  # transition-time losses: every leg change counts
     status = STATUS_OK
     t = p_first * period
     compute_forms(md, q, forms, fsc)
@@ -1670,6 +1740,11 @@ def run_periods(x, md, q, period, n_grid, n_sub, duration, p_first, p_last, ev_t
             elif st != STATUS_OK:
                 status = st
                 break
+        # the current's range over the period (at every segment end: the switching instants
+        # are segment ends, and between them the current of each linear circuit is monotone
+        # for a locked rotor, nearly so on the scale of a period for a turning one)
+        i_lo = x[S_I]
+        i_hi = x[S_I]
         # auto-restart after a trip, checked at each period start
         if (
             md[M_TRIP] == 1
@@ -1726,6 +1801,8 @@ def run_periods(x, md, q, period, n_grid, n_sub, duration, p_first, p_last, ev_t
             else:
                 la, lb = LEG_OFF, LEG_OFF
             if la != md[M_LEG_A] or lb != md[M_LEG_B]:
+                old_a = md[M_LEG_A]
+                old_b = md[M_LEG_B]
                 dra, drb = drive_legs(q[Q_MOD])
                 if la == dra and lb == drb:
                     acc[A_PULSE_T0] = t0  # a drive pulse starts (for blanking, min on-time)
@@ -1750,8 +1827,8 @@ def run_periods(x, md, q, period, n_grid, n_sub, duration, p_first, p_last, ev_t
                     fcache_sc[fs_] = fsc
                     fcache_key[fs_] = fk
                     fcache_gen[fs_] = genbox[0]
-                if bedges[k] > 0 and switching:
-                    switching_energy(x, md, q, forms, fsc, bedges[k], acc)
+                if switching and (bedges[k] > 0 or timed):
+                    switching_energy(x, md, q, forms, fsc, bedges[k], acc, old_a, old_b)
                     acc[A_SWITCHINGS] += bedges[k]
                 held = md[M_SIGMA] == 0 and fsc[C_SENS] < 0.5  # no longer held at zero
                 if held or guard_min(x, md, q, forms, fsc, False) < 0.0:
@@ -1857,6 +1934,8 @@ def run_periods(x, md, q, period, n_grid, n_sub, duration, p_first, p_last, ev_t
                     status = st
                     break
                 lim = lim and bridge_enabled(md)
+            i_lo = min(i_lo, x[S_I])
+            i_hi = max(i_hi, x[S_I])
             if status != STATUS_OK:
                 break
             if hit_limit:
@@ -1913,6 +1992,8 @@ def run_periods(x, md, q, period, n_grid, n_sub, duration, p_first, p_last, ev_t
             if at_end:
                 break
             k += 1
+        if switching and status == STATUS_OK and t >= t_p + period * (1.0 - 1e-9):
+            acc[A_RIPPLE_LAST] = i_hi - i_lo  # a complete period (not cut by the run's end)
         legs[0] = end_a
         legs[1] = end_b
         if status != STATUS_OK:

@@ -92,7 +92,9 @@ Q_BMS_IDIS = 67  # ... largest discharge current [A] (inf: no limit)
 Q_BMS_VFULL = 68  # ... largest terminal voltage OCV - R_bat i [V] (inf: no limit)
 Q_BMS_VRECLOSE = 69  # ... recloses when the bus falls below this voltage [V] (-inf: not)
 Q_BMS_TRECLOSE = 70  # ... recloses this long after opening [s] (inf: not)
-N_Q = 71
+Q_TR = 71  # switch turn-on transition time (rise time) [s] (0: no transition-time loss)
+Q_TF = 72  # switch turn-off transition time (fall time) [s]
+N_Q = 73
 
 # Discrete modes (int64)
 M_STUCK = 0  # shaft held at zero speed
@@ -161,7 +163,9 @@ A_PERIOD_BUS_MAX = 39  # bus voltage extremes within the present period [V]
 A_PERIOD_BUS_MIN = 40
 A_BUS_RIPPLE = 41  # largest peak-to-peak bus voltage over one period [V]
 A_BMS_OPEN_TIME = 42  # when the battery disconnect last opened [s] (-1: never)
-N_ACC = 43
+A_SWITCH_LOSS = 43  # the switching part of A_BRIDGE [J]
+A_RIPPLE_LAST = 44  # current peak-to-peak over the last complete PWM period [A] (-1: none)
+N_ACC = 45
 
 # Trace columns
 R_TIME = 0

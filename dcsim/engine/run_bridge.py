@@ -42,6 +42,7 @@ def run_bridge_inputs(bi: BridgeInputs, progress: Callable[[float], None] | None
     there [A], its end [s] and the current there [A]; NaN while unfinished)."""
     rec = np.zeros((B.N_REC, bi.rows))
     acc = np.zeros(B.N_ACC)
+    acc[B.A_RIPPLE_LAST] = -1.0  # no complete PWM period yet
     trips = np.zeros((B.MAX_TRIPS + 1, 3))
     chops = np.zeros((B.MAX_CHOPS + 1, 4))
     q = bi.params.copy()
@@ -243,4 +244,35 @@ def bridge_summary(sc, bi: BridgeInputs, acc, xf, qf, trips, chops=None) -> dict
     )
     if bi.switching:
         summary["pwm_period_s"] = bi.period_s
+    summary.update(bridge_loss_split(bi, acc))
+    warning = sc.bridge.audible_warning
+    if warning is not None:
+        summary["pwm_warning"] = warning
     return summary
+
+
+def bridge_loss_split(bi: BridgeInputs, acc) -> dict:
+    """The bridge loss split into its switching and conduction parts, their mean powers, and
+    the armature current ripple (switching model).
+
+    ``bridge_switching_loss_J`` [J] is the energy of the leg transitions (per-transition
+    energy or transition times, see :func:`dcsim.engine.bridge_kernel.switching_energy`);
+    ``bridge_conduction_loss_J`` [J] the rest of ``energy_bridge_loss_J`` (on-resistance and
+    diode drops, integrated over the run). Neither starts with ``energy_``: the account holds
+    their sum once, as ``energy_bridge_loss_J``. The powers [W] are the energies over the
+    run's duration. ``current_ripple_A`` [A]: the armature current's peak-to-peak over the
+    last complete PWM period of the run (switching model only; the averaged model has no
+    ripple to show, and its closed form is not given here).
+    """
+    total = float(acc[B.A_BRIDGE])
+    switching = float(acc[B.A_SWITCH_LOSS])
+    conduction = total - switching
+    out = {
+        "bridge_switching_loss_J": switching,
+        "bridge_conduction_loss_J": conduction,
+        "bridge_switching_loss_W": switching / bi.duration_s,
+        "bridge_conduction_loss_W": conduction / bi.duration_s,
+    }
+    if bi.switching and acc[B.A_RIPPLE_LAST] >= 0.0:
+        out["current_ripple_A"] = float(acc[B.A_RIPPLE_LAST])
+    return out

@@ -242,6 +242,18 @@ def _power_stage_rows(summary: Mapping[str, Any], row) -> None:
         row("switching events (leg transitions)", str(get("switching_events")))
     if get("current_limit_events"):
         row("pulses ended by the peak current limit", str(get("current_limit_events")))
+    if get("energy_bridge_loss_J"):
+        row(
+            "bridge loss, mean over the run",
+            f"switching {_num(get('bridge_switching_loss_W'), 'W', digits=4)}   "
+            f"conduction {_num(get('bridge_conduction_loss_W'), 'W', digits=4)}",
+        )
+    if get("current_ripple_A") is not None:
+        row("current ripple (last PWM period, p-p)", _num(get("current_ripple_A"), "A", digits=4))
+    if get("pwm_warning"):
+        period = get("pwm_period_s")
+        shown = _num(1e-3 / float(period), "kHz", digits=4) if period else "n/a"
+        row("PWM frequency", f"{shown}: in the audible band (below 20 kHz)")
     if get("energy_to_brake_resistor_J"):
         row("peak brake resistor power", _num(get("peak_brake_power_W"), "W"))
     events = list(get("trips") or []) + list(get("restarts") or [])

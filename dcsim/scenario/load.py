@@ -1245,6 +1245,32 @@ def _power_stage_problem(
             "bridge.duty_counts",
             f"expected a whole number of timer counts, found {show('bridge.duty_counts')}",
         )
+    timed = [f"bridge.{k}" for k in ("rise_time", "fall_time") if f"bridge.{k}" in given]
+    if timed:
+        energy = [
+            f"bridge.{k}"
+            for k in ("switching_energy", "switching_energy_voltage", "switching_energy_current")
+            if f"bridge.{k}" in given
+        ]
+        if energy:
+            return (
+                timed[0],
+                f"expected either the switching energy or the transition times (they give the "
+                f"same loss two ways), found both {', '.join(energy)} and {', '.join(timed)}",
+            )
+        if model != "switching":
+            return (
+                timed[0],
+                f"expected bridge.model = 'switching' for {', '.join(timed)} (the averaged "
+                f"model has no transitions to time), found bridge.model {show('bridge.model')}",
+            )
+        if not state["bridge.rise_time"] + state["bridge.fall_time"] < period / 2:
+            return (
+                timed[-1],
+                f"expected rise_time + fall_time shorter than half the PWM period "
+                f"({period / 2:.3g} s), found {show('bridge.rise_time')} + "
+                f"{show('bridge.fall_time')}",
+            )
     if state["bridge.peak_current_limit"] > 0.0 and model != "switching":
         return (
             "bridge.peak_current_limit",

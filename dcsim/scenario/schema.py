@@ -111,6 +111,10 @@ MAGNET_COEFFICIENTS_PER_K = {
 -0.02 %/K): typical values from memory (magnet makers' data sheets give each grade's own);
 the air-gap flux, and so the torque constant, follows the remanence."""
 
+AUDIBLE_LIMIT_HZ = 20e3
+"""PWM frequencies below this lie in the audible band [Hz] (the usual line for a drive that
+must not whine; common practice (no source))."""
+
 CONTROLLED = "<controlled>"
 """Placeholder unit of reference values: A, rad/s or rad, as the control mode says."""
 
@@ -277,6 +281,8 @@ KEYS: dict[str, dict[str, KeySpec]] = {
         "off_time": _q("s", "a time", "25 us", default=None, constraint="positive"),
         "comparator_delay": _q("s", "a time", "300 ns", default=0.0),
         "min_on_time": _q("s", "a time", "1 us", default=0.0),
+        "rise_time": _q("s", "a time", "40 ns", default=0.0),
+        "fall_time": _q("s", "a time", "60 ns", default=0.0),
     },
     "brake": {
         "resistance": _q("ohm", "a resistance", "10 ohm", constraint="positive"),
@@ -783,6 +789,16 @@ class Bridge:
         Delay from the trip to the switches turning off [s] (the peak overshoots the level).
     min_on_time : float
         Shortest drive after a pulse starts, whatever the comparator says [s].
+    rise_time, fall_time : float
+        Turn-on and turn-off transition times of a switch [s] (switching model; instead of
+        ``switching_energy``): each hard-switched transition loses ``V_bus |i| t / 2`` with
+        ``t`` the rise time for a switch turning on, the fall time for one turning off
+        (Mohan, Undeland & Robbins, *Power Electronics*, 3rd ed., sec. 2-5, from memory);
+        0: none.
+
+    Notes
+    -----
+    :attr:`audible_warning` is the warning of a PWM frequency in the audible band.
     """
 
     model: str = "ideal"
@@ -810,6 +826,8 @@ class Bridge:
     off_time: float | None = None
     comparator_delay: float = 0.0
     min_on_time: float = 0.0
+    rise_time: float = 0.0
+    fall_time: float = 0.0
 
     @property
     def trip_current_A(self) -> float:
@@ -817,6 +835,18 @@ class Bridge:
         if self.sense_threshold > 0.0 and self.sense_resistance > 0.0:
             return self.sense_threshold / self.sense_resistance
         return self.peak_current_limit
+
+    @property
+    def audible_warning(self) -> str | None:
+        """The warning of a switching model whose PWM frequency lies in the audible band
+        (below :data:`AUDIBLE_LIMIT_HZ`), naming the key and its value; ``None`` otherwise."""
+        if self.model != "switching" or not self.frequency < AUDIBLE_LIMIT_HZ:
+            return None
+        return (
+            f"bridge.frequency = {self.frequency / 1e3:.4g} kHz lies in the audible band "
+            f"(below {AUDIBLE_LIMIT_HZ / 1e3:g} kHz, common practice): the drive may whine at "
+            "the switching frequency or its harmonics"
+        )
 
 
 @dataclass(frozen=True)
