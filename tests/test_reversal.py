@@ -16,6 +16,7 @@ solved from the state just before the reversal by the matrix exponential (scipy.
 
 from __future__ import annotations
 
+import functools
 from pathlib import Path
 
 import numpy as np
@@ -63,16 +64,17 @@ def _reference_matrix(sc, duty: float) -> np.ndarray:
     return a
 
 
-@pytest.fixture(scope="module")
-def plugging():
+@functools.cache
+def plugging_run():
+    """The reversal scenario and its run (shared by the tests below; a cached helper)."""
     sc = load_scenario(SCENARIO)
     assert sc.bridge.model == "averaged" and sc.fuse is not None
     assert sc.bridge.on_resistance == 0.0 and sc.bridge.diode_drop == 0.0 and sc.supply.esr == 0.0
     return sc, _run(sc)
 
 
-def test_peak_current_after_the_reversal_against_the_closed_form(plugging):
-    sc, res = plugging
+def test_peak_current_after_the_reversal_against_the_closed_form():
+    sc, res = plugging_run()
     r, ll, k, j, b, s = _plant_values(sc)
     tr, summ = res.trace, res.summary
     t = tr["time_s"]
@@ -124,8 +126,8 @@ def test_peak_current_after_the_reversal_against_the_closed_form(plugging):
     assert abs(summ["peak_current_time_s"] - t_pk) <= h / 4.0 + 1e-12
 
 
-def test_fuse_check_sees_the_reversal(plugging):
-    sc, res = plugging
+def test_fuse_check_sees_the_reversal():
+    sc, res = plugging_run()
     tr = res.trace
     t, heat = tr["time_s"], tr["fuse_heat_fraction"]
     report = run_checks(sc)

@@ -263,8 +263,8 @@ def check_invariants(sc: Scenario) -> None:
                     assert value >= 0
             elif spec.kind == "bool":
                 assert isinstance(value, bool)
-            elif spec.kind == "choice":
-                assert value in spec.choices
+            elif spec.kind == "choice":  # a choice without a default may be left unset
+                assert value in spec.choices or (value is None and spec.default is None)
     times = [e.at for e in sc.events]
     assert times == sorted(times)
     assert all(0 <= t <= sc.simulation.duration for t in times)
