@@ -42,6 +42,15 @@ fall times: see :func:`switching_energy`) is taken from the bus capacitor at the
 and booked apart from the conduction loss; the current's range over each PWM period (at the
 segment ends, which hold every switching instant) gives the ripple of the last complete one.
 
+Drive/decay PWM (``Q_DECAY``) drives one diagonal for the duty and lets the current decay in
+the off-time: slow (both low-side or both high-side switches on), fast (every switch off, or
+the opposite diagonal) or mixed. The current comparator (a trip level on the sensed current,
+after a blanking time) opens the switches a comparator delay later, not before the minimum
+on-time, and the legs then decay for the rest of the PWM period (cycle-by-cycle) or for a
+fixed off-time (a decay window that may reach into later periods). These timed actions and
+the over-current deglitch split a segment like an event (:func:`next_timer`,
+:func:`fire_timers`); each decay is logged in ``chops``.
+
 References
 ----------
 .. [1] N. Mohan, T. M. Undeland and W. P. Robbins, *Power Electronics: Converters,
@@ -278,7 +287,7 @@ N_WORK = 20  # values per point kept by `point_values`
 CACHE_SLOTS = 4096
 FORM_SLOTS = 256
 MAX_BP = 64  # schedule breakpoints per period beyond the grid
-STATUS_LIMIT = 100  # internal: the peak current limit ended the pulse
+STATUS_LIMIT = 100  # internal: the current reached the comparator's trip level
 _ACC_OF_WORK = np.array(
     [A_I2T, A_SUPPLY, A_SOURCE_LOSS, A_COPPER, A_FRICTION, A_LOAD, A_BRIDGE, A_BRAKE, A_ESR,
      A_PRECHARGE],
@@ -940,8 +949,8 @@ def advance_general(x, md, q, forms, fsc, tau, t0, h_nom, cache_key, cache_tau, 
     """Advance ``x`` by ``tau`` from ``t0`` with the regime changes located inside the step
     (Illinois) and the step split there, as often as needed (the common case, no change
     within the step, is inlined in :func:`run_periods`). Returns ``(status, time
-    reached)``; ``STATUS_LIMIT`` when the peak current limit ended the pulse (the caller then
-    switches the legs off for the rest of the period)."""
+    reached)``; ``STATUS_LIMIT`` when the current reached the comparator's trip level (the
+    caller then schedules the decay after the comparator delay)."""
     remaining = tau
     t = t0
     splits = 0
