@@ -42,12 +42,14 @@ from numba import njit
 from dcsim.controllers.cascade import control_sample, copy_record
 from dcsim.engine.expm import phi_blocks
 from dcsim.engine.layout import (
+    A_BRUSH_FRICTION,
     A_BUS_MAX,
     A_BUS_MIN,
     A_COPPER,
     A_COUPLING,
     A_FRICTION,
     A_I2T,
+    A_IRON,
     A_LOAD,
     A_LOCK,
     A_PEAK_I,
@@ -57,6 +59,7 @@ from dcsim.engine.layout import (
     A_SUPPLY,
     N_STATE,
     P_B,
+    P_BE,
     P_C,
     P_J,
     P_K,
@@ -65,7 +68,9 @@ from dcsim.engine.layout import (
     P_R,
     P_REGEN,
     P_RS,
+    P_TBR,
     P_TC,
+    P_TH,
     P_TL,
     P_TS,
     P_VCMD,
@@ -91,11 +96,16 @@ from dcsim.engine.layout import (
     X_SPEED,
 )
 from dcsim.plant.machine import fill_armature_row
-from dcsim.plant.mechanics import fill_shaft_rows, friction_state, inertia_change
+from dcsim.plant.mechanics import (
+    dry_drag_levels,
+    fill_shaft_rows,
+    friction_state,
+    inertia_change,
+)
 from dcsim.power.bus import bus_without_capacitor, fill_bus_row
 
 N_REGIME = 12  # 2 shaft states x 3 bridge states x 2 source states
-N_WORK = 10  # values per point kept by `powers`
+N_WORK = 12  # values per point kept by `powers`
 BRIDGE_CONTROL = 0
 BRIDGE_FULL_POS = 1
 BRIDGE_FULL_NEG = 2
@@ -124,8 +134,9 @@ def _bridge_state(x, p, has_cap):
 @njit(cache=True, error_model="numpy", inline="always")
 def regime_of(x, p, has_cap):
     """Regime code and Coulomb friction sign at state ``x``."""
+    sliding, breakaway = dry_drag_levels(p[P_TC], p[P_TS], p[P_TBR], p[P_TH])
     stuck, fsign = friction_state(
-        x[X_SPEED], p[P_K] * x[X_CURRENT] - p[P_TL], p[P_TC], p[P_TS], p[P_LOCK] > 0.5
+        x[X_SPEED], p[P_K] * x[X_CURRENT] - p[P_TL], sliding, breakaway, p[P_LOCK] > 0.5
     )
     bridge = _bridge_state(x, p, has_cap)
     blocked = has_cap and p[P_REGEN] < 0.5 and x[X_BUS] > p[P_VS]
@@ -189,7 +200,7 @@ def system_matrix(r, p, has_cap, a):
     else:
         r_loop = p[P_R] if bridge == BRIDGE_CONTROL else p[P_R] + rs
         fill_armature_row(a, np.zeros(N_STATE), r_loop, p[P_L], p[P_K], 0.0, 0.0)
-    fill_shaft_rows(a, np.zeros(N_STATE), p[P_K], p[P_J], p[P_B], 0.0, stuck)
+    fill_shaft_rows(a, np.zeros(N_STATE), p[P_K], p[P_J], p[P_B] + p[P_BE], 0.0, stuck)
 
 
 @njit(cache=True, error_model="numpy")
@@ -205,7 +216,8 @@ def forcing(r, fsign, p, has_cap, b, dummy):
     elif not has_cap:
         vfix = p[P_VS] if bridge == BRIDGE_FULL_POS else -p[P_VS]
     fill_armature_row(dummy, b, p[P_R], p[P_L], p[P_K], vfix, 0.0)
-    fill_shaft_rows(dummy, b, p[P_K], p[P_J], p[P_B], p[P_TL] + p[P_TC] * fsign, stuck)
+    sliding, breakaway = dry_drag_levels(p[P_TC], p[P_TS], p[P_TBR], p[P_TH])
+    fill_shaft_rows(dummy, b, p[P_K], p[P_J], p[P_B] + p[P_BE], p[P_TL] + sliding * fsign, stuck)
     if has_cap:
         fill_bus_row(dummy, b, p[P_VS], p[P_RS], p[P_C], not blocked, 0.0)
 
@@ -217,7 +229,7 @@ def guard(x, p, has_cap, r, fsign):
     stuck = (r % 2) == 1
     bridge = (r // 2) % 3
     blocked = r >= 6
-    ts = max(p[P_TS], p[P_TC])  # breakaway level (static friction)
+    sliding, ts = dry_drag_levels(p[P_TC], p[P_TS], p[P_TBR], p[P_TH])  # breakaway level
     if p[P_LOCK] < 0.5 and ts > 0.0:
         if stuck:
             g = min(g, ts - abs(p[P_K] * x[X_CURRENT] - p[P_TL]))
@@ -317,7 +329,8 @@ def propagate(x, b, cache, slot, nl_coef, x1, xm, force, dg_vec):
 @njit(cache=True, error_model="numpy", inline="always")
 def powers(x, p, has_cap, r, fsign, work, row):
     """Integrands at ``x`` into ``work[row]``: i^2, source power, source and copper loss,
-    friction, load; then bus voltage, armature voltage, bridge and supply current."""
+    friction, load; then bus voltage, armature voltage, bridge and supply current; then brush
+    friction and iron loss (hysteresis ``T_h |w|`` + eddy current ``B_e w^2``)."""
     vb, va, ib, isup = bus_state(x, p, has_cap, r)
     i = x[X_CURRENT]
     w = x[X_SPEED]
@@ -331,6 +344,8 @@ def powers(x, p, has_cap, r, fsign, work, row):
     work[row, 7] = va
     work[row, 8] = ib
     work[row, 9] = isup
+    work[row, 10] = p[P_TBR] * fsign * w
+    work[row, 11] = p[P_TH] * fsign * w + p[P_BE] * w * w
 
 
 @njit(cache=True, error_model="numpy")
@@ -355,6 +370,8 @@ def accumulate(x0, xm, x1, hh, t0, p, has_cap, r, fsign, acc, work, reuse_start)
     acc[A_COPPER] += w0 * (work[0, 3] + work[2, 3]) + wm * work[1, 3]
     acc[A_FRICTION] += w0 * (work[0, 4] + work[2, 4]) + wm * work[1, 4]
     acc[A_LOAD] += w0 * (work[0, 5] + work[2, 5]) + wm * work[1, 5]
+    acc[A_BRUSH_FRICTION] += w0 * (work[0, 10] + work[2, 10]) + wm * work[1, 10]
+    acc[A_IRON] += w0 * (work[0, 11] + work[2, 11]) + wm * work[1, 11]
     _peaks(xm, t0 + 0.5 * hh, work[1, 6], acc)
     _peaks(x1, t0 + hh, work[2, 6], acc)
 
@@ -575,7 +592,8 @@ def write_row(x, p, r, fsign, t, vb, va, ib, isup, rec, row):
     elif (r % 2) == 1:
         fr = p[P_K] * i - p[P_TL]  # static friction balances the drive torque
     else:
-        fr = p[P_B] * x[X_SPEED] + p[P_TC] * fsign
+        sliding, breakaway = dry_drag_levels(p[P_TC], p[P_TS], p[P_TBR], p[P_TH])
+        fr = (p[P_B] + p[P_BE]) * x[X_SPEED] + sliding * fsign  # with brush and iron drag
     rec[R_FRICTION_TORQUE, row] = fr
     rec[R_BRIDGE_CURRENT, row] = ib
 
