@@ -108,6 +108,7 @@ def parameter_vector(sc: Scenario) -> np.ndarray:
     p[L.P_TBR] = m.brush_friction
     p[L.P_TH] = m.hysteresis_loss_torque
     p[L.P_BE] = m.eddy_loss_coefficient
+    p[L.P_VBRUSH] = m.brush_drop
     return p
 
 

@@ -30,7 +30,8 @@ P_TS = 13  # static (breakaway) friction [N*m]; 0: equal to P_TC (breakaway = ma
 P_TBR = 14  # brush friction [N*m] (a Coulomb torque of its own)
 P_TH = 15  # hysteresis (iron) drag torque [N*m] (constant magnitude)
 P_BE = 16  # eddy-current (iron) drag coefficient [N*m*s/rad]
-N_PARAM = 17
+P_VBRUSH = 17  # brush contact drop per brush [V] (two brushes in the armature circuit)
+N_PARAM = 18
 
 # Accumulators (integrated at full rate by the kernel)
 A_I2T = 0  # integral of i^2 [A^2*s]
@@ -48,7 +49,8 @@ A_SPLITS = 11  # number of located regime changes (stick/slip, clipping, diode)
 A_COUPLING = 12  # kinetic energy lost when load inertia engages, or carried off when released [J]
 A_BRUSH_FRICTION = 13  # brush friction loss [J]
 A_IRON = 14  # iron loss: hysteresis + eddy-current drag [J]
-N_ACC = 15
+A_BRUSH_DROP = 15  # brush contact drop loss 2 V_b |i| [J]
+N_ACC = 16
 
 # Recorded columns (kernel order)
 R_TIME = 0

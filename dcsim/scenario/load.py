@@ -1202,13 +1202,6 @@ def _power_stage_problem(
 ) -> _Problem:
     """Rules of the power-stage parts (checked once, on the initial values)."""
     model = state["bridge.model"]
-    if model == "ideal" and state["motor.brush_drop"] > 0.0:
-        return (
-            "motor.brush_drop",
-            "expected bridge.model = 'averaged' or 'switching' for a brush contact drop (the "
-            "ideal bridge's kernel has no zero-current regime to hold the current at zero "
-            f"when the brushes block), found bridge.model {show('bridge.model')}",
-        )
     if model == "ideal":
         extra = [f"[{t}]" for t in POWER_STAGE_TABLES if t in present]
         extra += [

@@ -633,8 +633,8 @@ class Motor:
         ``coulomb_friction`` (no static excess). See :mod:`dcsim.plant.mechanics`.
     brush_drop : float
         Contact drop of each of the two brushes [V]: the armature sees ``v - 2 V_b sgn(i)``
-        and the current stays at zero while ``|v - K w| < 2 V_b``. Needs bridge.model
-        'averaged' or 'switching'. See :mod:`dcsim.plant.machine`.
+        and the current stays at zero while ``|v - K w| < 2 V_b`` (loss
+        ``energy_brush_drop_J``). See :mod:`dcsim.plant.machine`.
     brush_friction : float
         Brush friction [N*m], a Coulomb torque of its own (loss ``energy_brush_friction_J``).
     hysteresis_loss_torque : float
