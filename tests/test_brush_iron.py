@@ -387,3 +387,24 @@ def test_locked_rotor_mean_current_switching_bridge():
     i_ss = (emf - 2 * V_B) / r_loop
     assert mean == pytest.approx(i_ss, rel=2e-3)
     assert np.all(i[last] > 0.0)  # continuous conduction: the drop acts all the time
+
+
+@pytest.mark.parametrize("bridge", BRIDGES)
+def test_brush_friction_stays_apart_when_an_event_changes_coulomb_friction(bridge):
+    # Source: the work of a constant-magnitude torque on a shaft that turns one way only is
+    # that torque times the angle turned (W = T theta, e.g. Meriam & Kraige, Dynamics, work
+    # of a couple -- from memory). Tolerance: Simpson's rule on the speed at h = tau/10 errs by
+    # about (h/tau)^4/180 ~ 1e-7 at most (dcsim.engine.assemble); the angle is exact.
+    events = '[[events]]\nat = "0.1 s"\nset = { "motor.coulomb_friction" = "6 mN*m" }\n'
+    res = _run(_text(6.0, 0.2, bridge=bridge, drop=0.0, events=events))
+    w = res.trace["speed_rad_s"]
+    assert np.all(w >= 0.0)
+    theta = res.trace["position_rad"][-1]
+    assert res.summary["energy_brush_friction_J"] == pytest.approx(T_BR * theta, rel=1e-7)
+    # the bearings' share follows the event: T_c theta(0.1 s) + T_c' (theta - theta(0.1 s))
+    # + B W2, with W2 = int w^2 dt taken from the iron account (T_h theta + B_e W2)
+    t = res.trace["time_s"]
+    theta_ev = res.trace["position_rad"][int(np.argmin(np.abs(t - 0.1)))]
+    w2 = (res.summary["energy_iron_loss_J"] - T_H * theta) / B_E
+    bearings = TC * theta_ev + 6e-3 * (theta - theta_ev) + B * w2
+    assert res.summary["energy_friction_J"] == pytest.approx(bearings, rel=1e-7)
