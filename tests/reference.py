@@ -630,6 +630,9 @@ ENERGY_TERMS = (
     "energy_to_load_J",
     "energy_shaft_lock_J",
     "energy_coupling_J",
+    "energy_brush_drop_J",
+    "energy_brush_friction_J",
+    "energy_iron_loss_J",
     "kinetic_energy_change_J",
     "stored_energy_change_J",
 )

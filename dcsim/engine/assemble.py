@@ -105,6 +105,10 @@ def parameter_vector(sc: Scenario) -> np.ndarray:
     p[L.P_REGEN] = 1.0 if s.regenerative else 0.0
     p[L.P_VCMD] = c.voltage
     p[L.P_TS] = m.static_friction or 0.0  # None: the breakaway level is the Coulomb one
+    p[L.P_TBR] = m.brush_friction
+    p[L.P_TH] = m.hysteresis_loss_torque
+    p[L.P_BE] = m.eddy_loss_coefficient
+    p[L.P_VBRUSH] = m.brush_drop
     return p
 
 
@@ -113,16 +117,18 @@ def time_constants(p: np.ndarray) -> dict[str, float]:
 
     ``electrical`` L/(R+R_s); ``electromechanical`` J (R+R_s) / K^2 (the mechanical time
     constant of a DC motor, e.g. Hughes & Drury, *Electric Motors and Drives*, ch. 4);
-    ``electromechanical_resonance`` sqrt(L J)/K; ``viscous`` J/B; with a capacitor the source
-    R_s C, the armature R C and the L-C resonance sqrt(L C).
+    ``electromechanical_resonance`` sqrt(L J)/K; ``viscous`` J/(B + B_e) (bearing and
+    eddy-current drag); with a capacitor the source R_s C, the armature R C and the L-C
+    resonance sqrt(L C).
     """
     r_tot = p[L.P_R] + p[L.P_RS]
     tau = {"electrical": p[L.P_L] / r_tot}
     if p[L.P_LOCK] < 0.5:
         tau["electromechanical"] = p[L.P_J] * r_tot / p[L.P_K] ** 2
         tau["electromechanical_resonance"] = math.sqrt(p[L.P_L] * p[L.P_J]) / p[L.P_K]
-        if p[L.P_B] > 0.0:
-            tau["viscous"] = p[L.P_J] / p[L.P_B]
+        b_visc = p[L.P_B] + p[L.P_BE]  # bearing viscous friction and eddy-current drag
+        if b_visc > 0.0:
+            tau["viscous"] = p[L.P_J] / b_visc
     if p[L.P_C] > 0.0:
         if p[L.P_RS] > 0.0:
             tau["source_rc"] = p[L.P_RS] * p[L.P_C]
@@ -330,6 +336,10 @@ def bridge_parameters(sc: Scenario):
     q[B.Q_B] = m.viscous_friction
     q[B.Q_TC] = m.coulomb_friction
     q[B.Q_TS] = m.static_friction or 0.0  # None: the breakaway level is the Coulomb one
+    q[B.Q_VBRUSH] = m.brush_drop
+    q[B.Q_TBR] = m.brush_friction
+    q[B.Q_TH] = m.hysteresis_loss_torque
+    q[B.Q_BE] = m.eddy_loss_coefficient
     q[B.Q_TL] = ld.torque
     q[B.Q_LOCK] = 1.0 if ld.locked else 0.0
     bat = sc.battery

@@ -76,6 +76,8 @@ from dcsim.engine.bridge_layout import (
     A_BRAKE,
     A_BRAKE_PEAK_W,
     A_BRIDGE,
+    A_BRUSH_DROP,
+    A_BRUSH_FRICTION,
     A_BUS_MAX,
     A_BUS_MIN,
     A_BUS_MIN_TIME,
@@ -97,6 +99,7 @@ from dcsim.engine.bridge_layout import (
     A_FUSE_PEAK,
     A_I2T,
     A_ICAP2,
+    A_IRON,
     A_LIMIT_EVENTS,
     A_LOAD,
     A_LOCK,
@@ -150,6 +153,7 @@ from dcsim.engine.bridge_layout import (
     Q_BAT_LO,
     Q_BAT_Q,
     Q_BAT_R,
+    Q_BE,
     Q_BLANK,
     Q_BMS_ICHG,
     Q_BMS_IDIS,
@@ -200,10 +204,12 @@ from dcsim.engine.bridge_layout import (
     Q_SLOPE,
     Q_SLOW_HIGH,
     Q_SWITCHING,
+    Q_TBR,
     Q_TC,
     Q_TCD,
     Q_TD,
     Q_TF,
+    Q_TH,
     Q_TL,
     Q_TOFF,
     Q_TONMIN,
@@ -211,6 +217,7 @@ from dcsim.engine.bridge_layout import (
     Q_TS,
     Q_UNIPOLAR,
     Q_UV,
+    Q_VBRUSH,
     Q_VCMD,
     Q_VD,
     Q_VNOM,
@@ -260,7 +267,12 @@ from dcsim.engine.bridge_layout import (
     TRIP_UNDER_VOLTAGE,
 )
 from dcsim.engine.expm import expm, matmul_small
-from dcsim.plant.mechanics import fill_shaft_rows, friction_state, inertia_change
+from dcsim.plant.mechanics import (
+    dry_drag_levels,
+    fill_shaft_rows,
+    friction_state,
+    inertia_change,
+)
 
 # linear forms over the augmented state (rows of `forms`)
 F_VN = 0  # bus node voltage
@@ -282,8 +294,9 @@ C_RSRC = 5  # supply-line resistance incl. pre-charge [ohm]
 C_NG = 6  # number of guard rows (without the limit rows)
 C_RSN = 7  # the part of C_RB in the current-sense resistor [ohm]
 C_SGAIN = 8  # sensed current = C_SGAIN * i (1 in-line; the bridge gain g on the bus side)
-N_C = 9
-N_WORK = 20  # values per point kept by `point_values`
+C_VBRUSH = 9  # brush contact drop term 2 V_b sigma [V] (in the motor, not the bridge)
+N_C = 10
+N_WORK = 23  # values per point kept by `point_values`
 CACHE_SLOTS = 4096
 FORM_SLOTS = 256
 MAX_BP = 64  # schedule breakpoints per period beyond the grid
@@ -406,13 +419,16 @@ def compute_forms(md, q, forms, fsc):
         forms[F_DMINUS, j] = gn * forms[F_VN, j]
     forms[F_DPLUS, S_W] -= q[Q_K]
     forms[F_DMINUS, S_W] -= q[Q_K]
-    forms[F_DPLUS, S_ONE] -= vdp
-    forms[F_DMINUS, S_ONE] -= vdn
+    # the brushes: a drop of V_b each against the current, in series with the bridge's drops
+    vbr = 2.0 * q[Q_VBRUSH]
+    forms[F_DPLUS, S_ONE] -= vdp + vbr
+    forms[F_DMINUS, S_ONE] -= vdn - vbr
     fsc[C_G] = g
     fsc[C_RB] = rb
     fsc[C_VDROP] = vdrop
+    fsc[C_VBRUSH] = vbr * sigma
     fsc[C_GBR] = gbr
-    fsc[C_SENS] = 1.0 if sens else 0.0
+    fsc[C_SENS] = 1.0 if (sens or vbr > 0.0) else 0.0
     fsc[C_RSRC] = rsrc
     fsc[C_RSN] = rsn
     fsc[C_SGAIN] = g if q[Q_SENSE_BUS] > 0.5 else 1.0
@@ -431,7 +447,7 @@ def _guard_rows(md, q, forms, fsc):
     for r in range(F_G0, N_F):
         for j in range(N_A):
             forms[r, j] = 0.0
-    ts = max(q[Q_TS], q[Q_TC])  # breakaway level (static friction)
+    sliding, ts = dry_drag_levels(q[Q_TC], q[Q_TS], q[Q_TBR], q[Q_TH])  # breakaway level
     if q[Q_LOCK] < 0.5 and ts > 0.0:
         if md[M_STUCK] == 1:  # T_s - |K i - T_L| >= 0 as two rows
             forms[n, S_I] = -q[Q_K]
@@ -574,9 +590,12 @@ def build_matrix(md, q, forms, fsc, m, bvec):
             m[S_I, j] = g * forms[F_VN, j] / ll
         m[S_I, S_I] -= (q[Q_R] + fsc[C_RB]) / ll
         m[S_I, S_W] -= q[Q_K] / ll
-        m[S_I, S_ONE] -= fsc[C_VDROP] / ll
+        m[S_I, S_ONE] -= (fsc[C_VDROP] + fsc[C_VBRUSH]) / ll
     stuck = md[M_STUCK] == 1
-    fill_shaft_rows(m, bvec, q[Q_K], q[Q_J], q[Q_B], q[Q_TL] + q[Q_TC] * md[M_FSIGN], stuck)
+    sliding, breakaway = dry_drag_levels(q[Q_TC], q[Q_TS], q[Q_TBR], q[Q_TH])
+    fill_shaft_rows(
+        m, bvec, q[Q_K], q[Q_J], q[Q_B] + q[Q_BE], q[Q_TL] + sliding * md[M_FSIGN], stuck
+    )
     m[S_W, S_ONE] = bvec[S_W]
     for j in range(N_A):
         m[S_VC, j] = forms[F_ICAP, j] / q[Q_C]
@@ -670,8 +689,12 @@ def point_values(y, md, q, forms, fsc, work, row):
     work[row, 3] = q[Q_R] * i * i
     if md[M_STUCK] == 1:
         work[row, 4] = 0.0
+        work[row, 21] = 0.0
+        work[row, 22] = 0.0
     else:
         work[row, 4] = q[Q_B] * w * w + q[Q_TC] * md[M_FSIGN] * w
+        work[row, 21] = q[Q_TBR] * md[M_FSIGN] * w  # brush friction
+        work[row, 22] = q[Q_TH] * md[M_FSIGN] * w + q[Q_BE] * w * w  # iron: hysteresis + eddy
     work[row, 5] = q[Q_TL] * w
     work[row, 6] = (fsc[C_RB] - fsc[C_RSN]) * i * i + fsc[C_VDROP] * i
     work[row, 7] = fsc[C_GBR] * vn * vn
@@ -690,6 +713,7 @@ def point_values(y, md, q, forms, fsc, work, row):
     work[row, 17] = fsc[C_GBR] * vn
     work[row, 18] = fsc[C_RSN] * i * i
     work[row, 19] = icap * icap
+    work[row, 20] = fsc[C_VBRUSH] * i if md[M_SIGMA] != 0 else 0.0  # brush drop 2 V_b |i|
 
 
 @njit(cache=True, error_model="numpy", inline="always")
@@ -714,6 +738,9 @@ def add_integrals(tau, t0, md, q, work, acc):
         acc[_ACC_OF_WORK[k]] += w0 * (work[0, k] + work[2, k]) + wm * work[1, k]
     acc[A_SENSE] += w0 * (work[0, 18] + work[2, 18]) + wm * work[1, 18]
     acc[A_ICAP2] += w0 * (work[0, 19] + work[2, 19]) + wm * work[1, 19]
+    acc[A_BRUSH_DROP] += w0 * (work[0, 20] + work[2, 20]) + wm * work[1, 20]
+    acc[A_BRUSH_FRICTION] += w0 * (work[0, 21] + work[2, 21]) + wm * work[1, 21]
+    acc[A_IRON] += w0 * (work[0, 22] + work[2, 22]) + wm * work[1, 22]
     for r in range(1, 3):
         t = t0 + 0.5 * tau * r
         ia = math.sqrt(work[r, 0])
@@ -796,8 +823,9 @@ def update_modes(y, md, q, forms, fsc, t, acc, trips, ocv_soc, ocv_v):
         compute_forms(md, q, forms, fsc)
         changed = False
         i = y[S_I]
+        sliding, breakaway = dry_drag_levels(q[Q_TC], q[Q_TS], q[Q_TBR], q[Q_TH])
         stuck, fsign = friction_state(
-            y[S_W], q[Q_K] * i - q[Q_TL], q[Q_TC], q[Q_TS], q[Q_LOCK] > 0.5
+            y[S_W], q[Q_K] * i - q[Q_TL], sliding, breakaway, q[Q_LOCK] > 0.5
         )
         if (1 if stuck else 0) != md[M_STUCK] or int(fsign) != md[M_FSIGN]:
             md[M_STUCK] = 1 if stuck else 0
@@ -1502,7 +1530,8 @@ def write_row(x, md, q, forms, fsc, t, rec, row, acc, limit_flag, work):
     elif md[M_STUCK] == 1:
         fr = q[Q_K] * i - q[Q_TL]
     else:
-        fr = q[Q_B] * x[S_W] + q[Q_TC] * md[M_FSIGN]
+        sliding, breakaway = dry_drag_levels(q[Q_TC], q[Q_TS], q[Q_TBR], q[Q_TH])
+        fr = (q[Q_B] + q[Q_BE]) * x[S_W] + sliding * md[M_FSIGN]  # with brush and iron drag
     rec[R_FRICTION_TORQUE, row] = fr
     rec[R_BRIDGE_CURRENT, row] = work[0, 13]
     rec[R_DUTY, row] = q[Q_MOD] if bridge_enabled(md) else 0.0

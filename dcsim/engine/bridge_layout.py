@@ -94,7 +94,11 @@ Q_BMS_VRECLOSE = 69  # ... recloses when the bus falls below this voltage [V] (-
 Q_BMS_TRECLOSE = 70  # ... recloses this long after opening [s] (inf: not)
 Q_TR = 71  # switch turn-on transition time (rise time) [s] (0: no transition-time loss)
 Q_TF = 72  # switch turn-off transition time (fall time) [s]
-N_Q = 73
+Q_VBRUSH = 73  # brush contact drop per brush [V] (two brushes in the armature circuit)
+Q_TBR = 74  # brush friction [N*m] (a Coulomb torque of its own)
+Q_TH = 75  # hysteresis (iron) drag torque [N*m] (constant magnitude)
+Q_BE = 76  # eddy-current (iron) drag coefficient [N*m*s/rad]
+N_Q = 77
 
 # Discrete modes (int64)
 M_STUCK = 0  # shaft held at zero speed
@@ -165,7 +169,10 @@ A_BUS_RIPPLE = 41  # largest peak-to-peak bus voltage over one period [V]
 A_BMS_OPEN_TIME = 42  # when the battery disconnect last opened [s] (-1: never)
 A_SWITCH_LOSS = 43  # the switching part of A_BRIDGE [J]
 A_RIPPLE_LAST = 44  # current peak-to-peak over the last complete PWM period [A] (-1: none)
-N_ACC = 45
+A_BRUSH_DROP = 45  # brush contact drop loss 2 V_b |i| [J]
+A_BRUSH_FRICTION = 46  # brush friction loss [J]
+A_IRON = 47  # iron loss: hysteresis + eddy-current drag [J]
+N_ACC = 48
 
 # Trace columns
 R_TIME = 0

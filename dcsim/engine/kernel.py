@@ -13,8 +13,10 @@ with the term quadratic over the step, integrated exactly with phi1..phi3 (third
 
 Regime changes are located inside the step: each regime has a guard function (speed for a
 sliding shaft, breakaway margin for a stuck one, bus headroom for the bridge, the diode's
-forward voltage) and a sign change of the guard over the step is found by the Illinois
-method, the step is split there and continued in the new regime. Scenario events land at
+forward voltage; with a brush drop ``V_b`` the current for a current of either sign, and
+``2 V_b - |v_a - K w|`` for a current held at zero by the blocking brushes) and a sign
+change of the guard over the step is found by the Illinois method, the step is split there
+and continued in the new regime. Scenario events land at
 their exact instants by splitting the step at the event time.
 
 The integrals of the summary (I^2 t and every energy term) are accumulated at full rate with
@@ -42,12 +44,15 @@ from numba import njit
 from dcsim.controllers.cascade import control_sample, copy_record
 from dcsim.engine.expm import phi_blocks
 from dcsim.engine.layout import (
+    A_BRUSH_DROP,
+    A_BRUSH_FRICTION,
     A_BUS_MAX,
     A_BUS_MIN,
     A_COPPER,
     A_COUPLING,
     A_FRICTION,
     A_I2T,
+    A_IRON,
     A_LOAD,
     A_LOCK,
     A_PEAK_I,
@@ -57,6 +62,7 @@ from dcsim.engine.layout import (
     A_SUPPLY,
     N_STATE,
     P_B,
+    P_BE,
     P_C,
     P_J,
     P_K,
@@ -65,9 +71,12 @@ from dcsim.engine.layout import (
     P_R,
     P_REGEN,
     P_RS,
+    P_TBR,
     P_TC,
+    P_TH,
     P_TL,
     P_TS,
+    P_VBRUSH,
     P_VCMD,
     P_VS,
     R_ARMATURE_V,
@@ -91,14 +100,33 @@ from dcsim.engine.layout import (
     X_SPEED,
 )
 from dcsim.plant.machine import fill_armature_row
-from dcsim.plant.mechanics import fill_shaft_rows, friction_state, inertia_change
+from dcsim.plant.mechanics import (
+    dry_drag_levels,
+    fill_shaft_rows,
+    friction_state,
+    inertia_change,
+)
 from dcsim.power.bus import bus_without_capacitor, fill_bus_row
 
-N_REGIME = 12  # 2 shaft states x 3 bridge states x 2 source states
-N_WORK = 10  # values per point kept by `powers`
+N_REGIME = 36  # 2 shaft states x 3 bridge states x 2 source states x 3 current states
+N_WORK = 13  # values per point kept by `powers`
 BRIDGE_CONTROL = 0
 BRIDGE_FULL_POS = 1
 BRIDGE_FULL_NEG = 2
+CURRENT_POS = 0  # current >= 0 (or its direction does not matter: no brush drop)
+CURRENT_NEG = 1
+CURRENT_HELD = 2  # held at exactly zero: the brushes block
+
+
+@njit(cache=True, error_model="numpy", inline="always")
+def current_sign(r):
+    """Direction the brush drop opposes in regime ``r``: +1, -1, or 0 while held at zero."""
+    c = r // 12
+    if c == CURRENT_POS:
+        return 1.0
+    if c == CURRENT_NEG:
+        return -1.0
+    return 0.0
 
 
 @njit(cache=True, error_model="numpy", inline="always")
@@ -123,13 +151,29 @@ def _bridge_state(x, p, has_cap):
 
 @njit(cache=True, error_model="numpy", inline="always")
 def regime_of(x, p, has_cap):
-    """Regime code and Coulomb friction sign at state ``x``."""
+    """Regime code and Coulomb friction sign at state ``x``.
+
+    With a brush drop ``V_b`` the current's regime is its sign, or held at zero while the
+    armature voltage less the back-EMF stays within ``+-2 V_b`` (the brushes block).
+    """
+    sliding, breakaway = dry_drag_levels(p[P_TC], p[P_TS], p[P_TBR], p[P_TH])
     stuck, fsign = friction_state(
-        x[X_SPEED], p[P_K] * x[X_CURRENT] - p[P_TL], p[P_TC], p[P_TS], p[P_LOCK] > 0.5
+        x[X_SPEED], p[P_K] * x[X_CURRENT] - p[P_TL], sliding, breakaway, p[P_LOCK] > 0.5
     )
     bridge = _bridge_state(x, p, has_cap)
     blocked = has_cap and p[P_REGEN] < 0.5 and x[X_BUS] > p[P_VS]
     r = (1 if stuck else 0) + 2 * bridge + (6 if blocked else 0)
+    if p[P_VBRUSH] > 0.0:
+        i = x[X_CURRENT]
+        if i < 0.0:
+            r += 12 * CURRENT_NEG
+        elif i == 0.0:
+            vb, va, ib, isup = bus_state(x, p, has_cap, r)
+            drive = va - p[P_K] * x[X_SPEED]
+            if drive < -2.0 * p[P_VBRUSH]:
+                r += 12 * CURRENT_NEG
+            elif drive <= 2.0 * p[P_VBRUSH]:
+                r += 12 * CURRENT_HELD
     return r, fsign
 
 
@@ -137,7 +181,7 @@ def regime_of(x, p, has_cap):
 def bus_state(x, p, has_cap, r):
     """Bus voltage, armature voltage, bridge bus current and supply current [V, V, A, A]."""
     bridge = (r // 2) % 3
-    blocked = r >= 6
+    blocked = (r % 12) >= 6
     i = x[X_CURRENT]
     vc = p[P_VCMD]
     vs = p[P_VS]
@@ -176,7 +220,7 @@ def system_matrix(r, p, has_cap, a):
     a[:, :] = 0.0
     stuck = (r % 2) == 1
     bridge = (r // 2) % 3
-    blocked = r >= 6
+    blocked = (r % 12) >= 6
     rs = p[P_RS]
     if has_cap:
         gain = 0.0
@@ -189,7 +233,10 @@ def system_matrix(r, p, has_cap, a):
     else:
         r_loop = p[P_R] if bridge == BRIDGE_CONTROL else p[P_R] + rs
         fill_armature_row(a, np.zeros(N_STATE), r_loop, p[P_L], p[P_K], 0.0, 0.0)
-    fill_shaft_rows(a, np.zeros(N_STATE), p[P_K], p[P_J], p[P_B], 0.0, stuck)
+    fill_shaft_rows(a, np.zeros(N_STATE), p[P_K], p[P_J], p[P_B] + p[P_BE], 0.0, stuck)
+    if r // 12 == CURRENT_HELD:
+        for j in range(N_STATE):
+            a[X_CURRENT, j] = 0.0
 
 
 @njit(cache=True, error_model="numpy")
@@ -198,16 +245,20 @@ def forcing(r, fsign, p, has_cap, b, dummy):
     b[:] = 0.0
     stuck = (r % 2) == 1
     bridge = (r // 2) % 3
-    blocked = r >= 6
+    blocked = (r % 12) >= 6
     vfix = 0.0
     if bridge == BRIDGE_CONTROL:
         vfix = p[P_VCMD]
     elif not has_cap:
         vfix = p[P_VS] if bridge == BRIDGE_FULL_POS else -p[P_VS]
+    vfix -= 2.0 * p[P_VBRUSH] * current_sign(r)  # the brushes' drop against the current
     fill_armature_row(dummy, b, p[P_R], p[P_L], p[P_K], vfix, 0.0)
-    fill_shaft_rows(dummy, b, p[P_K], p[P_J], p[P_B], p[P_TL] + p[P_TC] * fsign, stuck)
+    sliding, breakaway = dry_drag_levels(p[P_TC], p[P_TS], p[P_TBR], p[P_TH])
+    fill_shaft_rows(dummy, b, p[P_K], p[P_J], p[P_B] + p[P_BE], p[P_TL] + sliding * fsign, stuck)
     if has_cap:
         fill_bus_row(dummy, b, p[P_VS], p[P_RS], p[P_C], not blocked, 0.0)
+    if r // 12 == CURRENT_HELD:
+        b[X_CURRENT] = 0.0
 
 
 @njit(cache=True, error_model="numpy", inline="always")
@@ -216,8 +267,8 @@ def guard(x, p, has_cap, r, fsign):
     g = math.inf
     stuck = (r % 2) == 1
     bridge = (r // 2) % 3
-    blocked = r >= 6
-    ts = max(p[P_TS], p[P_TC])  # breakaway level (static friction)
+    blocked = (r % 12) >= 6
+    sliding, ts = dry_drag_levels(p[P_TC], p[P_TS], p[P_TBR], p[P_TH])  # breakaway level
     if p[P_LOCK] < 0.5 and ts > 0.0:
         if stuck:
             g = min(g, ts - abs(p[P_K] * x[X_CURRENT] - p[P_TL]))
@@ -243,6 +294,14 @@ def guard(x, p, has_cap, r, fsign):
     if (not has_cap) and p[P_REGEN] < 0.5:
         vb, va, ib, isup = bus_state(x, p, has_cap, r)
         g = min(g, ib)
+    if p[P_VBRUSH] > 0.0:
+        cs = current_sign(r)
+        if cs != 0.0:
+            g = min(g, x[X_CURRENT] * cs)
+        else:  # held: |v_a - K w| <= 2 V_b
+            vb, va, ib, isup = bus_state(x, p, has_cap, r)
+            drive = va - p[P_K] * x[X_SPEED]
+            g = min(g, 2.0 * p[P_VBRUSH] - abs(drive))
     return g
 
 
@@ -317,7 +376,8 @@ def propagate(x, b, cache, slot, nl_coef, x1, xm, force, dg_vec):
 @njit(cache=True, error_model="numpy", inline="always")
 def powers(x, p, has_cap, r, fsign, work, row):
     """Integrands at ``x`` into ``work[row]``: i^2, source power, source and copper loss,
-    friction, load; then bus voltage, armature voltage, bridge and supply current."""
+    friction, load; then bus voltage, armature voltage, bridge and supply current; then brush
+    friction and iron loss (hysteresis ``T_h |w|`` + eddy current ``B_e w^2``)."""
     vb, va, ib, isup = bus_state(x, p, has_cap, r)
     i = x[X_CURRENT]
     w = x[X_SPEED]
@@ -331,6 +391,9 @@ def powers(x, p, has_cap, r, fsign, work, row):
     work[row, 7] = va
     work[row, 8] = ib
     work[row, 9] = isup
+    work[row, 10] = p[P_TBR] * fsign * w
+    work[row, 11] = p[P_TH] * fsign * w + p[P_BE] * w * w
+    work[row, 12] = 2.0 * p[P_VBRUSH] * current_sign(r) * i
 
 
 @njit(cache=True, error_model="numpy")
@@ -355,6 +418,9 @@ def accumulate(x0, xm, x1, hh, t0, p, has_cap, r, fsign, acc, work, reuse_start)
     acc[A_COPPER] += w0 * (work[0, 3] + work[2, 3]) + wm * work[1, 3]
     acc[A_FRICTION] += w0 * (work[0, 4] + work[2, 4]) + wm * work[1, 4]
     acc[A_LOAD] += w0 * (work[0, 5] + work[2, 5]) + wm * work[1, 5]
+    acc[A_BRUSH_FRICTION] += w0 * (work[0, 10] + work[2, 10]) + wm * work[1, 10]
+    acc[A_IRON] += w0 * (work[0, 11] + work[2, 11]) + wm * work[1, 11]
+    acc[A_BRUSH_DROP] += w0 * (work[0, 12] + work[2, 12]) + wm * work[1, 12]
     _peaks(xm, t0 + 0.5 * hh, work[1, 6], acc)
     _peaks(x1, t0 + hh, work[2, 6], acc)
 
@@ -521,6 +587,8 @@ def advance(
             )
             if fsign != 0.0 and (r % 2) == 0 and x1[X_SPEED] * fsign <= 0.0:
                 x1[X_SPEED] = 0.0  # the shaft reaches rest exactly here
+            if p[P_VBRUSH] > 0.0 and x1[X_CURRENT] * current_sign(r) < 0.0:
+                x1[X_CURRENT] = 0.0  # the current reaches zero exactly here
             accumulate(x, xm, x1, sub, t, p, has_cap, r, fsign, acc, work, False)
             carry[0] = 0
             for k in range(N_STATE):
@@ -531,7 +599,9 @@ def advance(
             acc[A_SPLITS] += 1.0
             if check_regen:
                 vb, va, ib, isup = bus_state(x, p, has_cap, r)
-                if ib <= 0.0 and p[P_VCMD] != 0.0:
+                r_new, fs_new = regime_of(x, p, has_cap)
+                held = r_new // 12 == CURRENT_HELD  # the brushes block: no current to return
+                if ib <= 0.0 and p[P_VCMD] != 0.0 and not held:
                     return STATUS_REGEN_NO_PATH, t
         else:
             accumulate(
@@ -575,7 +645,8 @@ def write_row(x, p, r, fsign, t, vb, va, ib, isup, rec, row):
     elif (r % 2) == 1:
         fr = p[P_K] * i - p[P_TL]  # static friction balances the drive torque
     else:
-        fr = p[P_B] * x[X_SPEED] + p[P_TC] * fsign
+        sliding, breakaway = dry_drag_levels(p[P_TC], p[P_TS], p[P_TBR], p[P_TH])
+        fr = (p[P_B] + p[P_BE]) * x[X_SPEED] + sliding * fsign  # with brush and iron drag
     rec[R_FRICTION_TORQUE, row] = fr
     rec[R_BRIDGE_CURRENT, row] = ib
 

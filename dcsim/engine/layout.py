@@ -27,7 +27,11 @@ P_C = 10  # bus capacitance [F]
 P_REGEN = 11  # 1.0 when the source takes current back
 P_VCMD = 12  # commanded armature voltage [V]
 P_TS = 13  # static (breakaway) friction [N*m]; 0: equal to P_TC (breakaway = max of both)
-N_PARAM = 14
+P_TBR = 14  # brush friction [N*m] (a Coulomb torque of its own)
+P_TH = 15  # hysteresis (iron) drag torque [N*m] (constant magnitude)
+P_BE = 16  # eddy-current (iron) drag coefficient [N*m*s/rad]
+P_VBRUSH = 17  # brush contact drop per brush [V] (two brushes in the armature circuit)
+N_PARAM = 18
 
 # Accumulators (integrated at full rate by the kernel)
 A_I2T = 0  # integral of i^2 [A^2*s]
@@ -43,7 +47,10 @@ A_BUS_MAX = 9  # highest bus voltage [V]
 A_BUS_MIN = 10  # lowest bus voltage [V]
 A_SPLITS = 11  # number of located regime changes (stick/slip, clipping, diode)
 A_COUPLING = 12  # kinetic energy lost when load inertia engages, or carried off when released [J]
-N_ACC = 13
+A_BRUSH_FRICTION = 13  # brush friction loss [J]
+A_IRON = 14  # iron loss: hysteresis + eddy-current drag [J]
+A_BRUSH_DROP = 15  # brush contact drop loss 2 V_b |i| [J]
+N_ACC = 16
 
 # Recorded columns (kernel order)
 R_TIME = 0

@@ -123,6 +123,9 @@ def energy_account(
         "energy_to_load_J": float(acc[L.A_LOAD]),
         "energy_shaft_lock_J": float(acc[L.A_LOCK]),
         "energy_coupling_J": float(acc[L.A_COUPLING]),
+        "energy_brush_drop_J": float(acc[L.A_BRUSH_DROP]),
+        "energy_brush_friction_J": float(acc[L.A_BRUSH_FRICTION]),
+        "energy_iron_loss_J": float(acc[L.A_IRON]),
         "kinetic_energy_change_J": float(kinetic),
         "stored_energy_change_J": float(stored),
     }

@@ -116,6 +116,9 @@ def bridge_energy_account(bi: BridgeInputs, acc, xf, qf) -> dict[str, float]:
         "energy_precharge_loss_J": float(acc[B.A_PRECHARGE]),
         "energy_current_sense_J": float(acc[B.A_SENSE]),
         "energy_fuse_arc_J": float(acc[B.A_FUSE_ARC]),
+        "energy_brush_drop_J": float(acc[B.A_BRUSH_DROP]),
+        "energy_brush_friction_J": float(acc[B.A_BRUSH_FRICTION]),
+        "energy_iron_loss_J": float(acc[B.A_IRON]),
         "kinetic_energy_change_J": float(kinetic),
         "stored_energy_change_J": float(stored),
     }

@@ -17,6 +17,13 @@ The loss between trace rows is the row's ``R i^2``, linear in between, scaled so
 integrates to the run's exact copper loss (the kernel's Simpson integral at full rate): the
 energy is exact, its distribution in time is the trace's.
 
+The iron loss (``motor.hysteresis_loss_torque``, ``motor.eddy_loss_coefficient``) heats the
+machine too: the row's ``T_h |w| + B_e w^2`` (:mod:`dcsim.plant.machine`), scaled the same way
+to the run's ``energy_iron_loss_J``, enters the **housing node** of the two-node network (the
+armature iron sits in the rotor and stator body, not in the winding's copper; a lumped split
+of our own, no source) and the **winding node** of the one-node model (its only node). Brush
+losses are not fed to the network (they heat the commutator, outside both nodes).
+
 References
 ----------
 .. [1] E. Lelarasmee, A. E. Ruehli, A. L. Sangiovanni-Vincentelli, "The waveform relaxation
@@ -178,21 +185,36 @@ def _temperatures(
     start of the run [K]."""
     th = sc.thermal
     t = result.trace["time_s"]
-    loss = r_rows * result.trace["current_A"] ** 2
-    total = float(0.5 * np.sum(np.diff(t) * (loss[1:] + loss[:-1])))
-    exact = float(result.summary["energy_copper_loss_J"])
-    if total > 0.0:
-        loss = loss * (exact / total)
+    loss = _scaled_to(t, r_rows * result.trace["current_A"] ** 2, "energy_copper_loss_J", result)
+    m = sc.motor
+    w = result.trace["speed_rad_s"]
+    iron = m.hysteresis_loss_torque * np.abs(w) + m.eddy_loss_coefficient * w * w
+    iron = _scaled_to(t, iron, "energy_iron_loss_J", result)
+    b_iron = b if not th.two_node else np.array([0.0, 1.0 / th.housing_capacity])
     cycle = sc.simulation.cycle_time
     n = a.shape[0]
+    has_iron = bool(np.any(iron != 0.0))
     if cycle is not None:
         from_zero = network_rise(t, loss, a, b, np.zeros(n))
+        if has_iron:
+            from_zero = from_zero + network_rise(t, iron, a, b_iron, np.zeros(n))
         x0 = periodic_start_rises(from_zero[-1], a, float(t[-1] - t[0]), cycle)
         rises = from_zero + free_response(a, x0, t)
     else:
         x0 = _initial_rises(th, a)
         rises = network_rise(t, loss, a, b, x0)
+        if has_iron:  # superposition: the network is linear
+            rises = rises + network_rise(t, iron, a, b_iron, np.zeros(n))
     return th.ambient + rises, float(th.ambient + x0[0])
+
+
+def _scaled_to(t: np.ndarray, power_W: np.ndarray, key: str, result: SimulationResult):
+    """The rows' power [W] scaled so that its trapezoidal integral is the summary's ``key``."""
+    total = float(0.5 * np.sum(np.diff(t) * (power_W[1:] + power_W[:-1])))
+    exact = float(result.summary.get(key, total))
+    if total > 0.0:
+        return power_W * (exact / total)
+    return power_W
 
 
 def _finish(

@@ -15,6 +15,18 @@ References
    ("Conventional d.c. motors"): armature equivalent circuit and ``T = k I``, ``E = k w``.
 .. [2] N. Mohan, *Electric Drives: An Integrative Approach*, MNPERE (2003), ch. 7:
    DC-motor equations and the equality of the torque and back-EMF constants in SI.
+.. [3] A. E. Fitzgerald, C. Kingsley Jr., S. D. Umans, *Electric Machinery*, 6th ed.,
+   McGraw-Hill (2003): sec. 1.5 (core loss, its hysteresis part proportional to frequency and
+   its eddy-current part to frequency squared, after Steinmetz) and ch. 7 (DC machines: the
+   brush contact drop, about 1 V per brush for carbon brushes, nearly independent of the
+   current) -- sections from memory.
+
+Brush contact drop: the armature sees ``v - 2 V_b sgn(i)`` (two brushes, each a constant
+drop ``V_b`` against the current [3]_); at zero current the brushes block while
+``|v - K w| < 2 V_b``, like a pair of diodes. Iron loss at speed ``w``: the hysteresis drag
+``T_h`` of constant magnitude and the eddy-current drag ``B_e w``, so the loss is
+``T_h |w| + B_e w^2`` [3]_ (the field's frequency in the armature iron is proportional to
+the speed).
 """
 
 from __future__ import annotations

@@ -75,6 +75,41 @@ def friction_state(
     return False, 1.0 if speed_rad_s > 0.0 else -1.0
 
 
+@njit(cache=True, error_model="numpy", inline="always")
+def dry_drag_levels(
+    coulomb_Nm: float, static_Nm: float, brush_Nm: float, hysteresis_Nm: float
+) -> tuple[float, float]:
+    """Sliding and breakaway levels of all the constant-magnitude drag torques on the shaft.
+
+    Brush friction and the hysteresis part of the iron loss act like Coulomb friction: a
+    torque of constant magnitude against the motion (hysteresis loss per revolution is fixed
+    by the flux swing, so its power is proportional to speed; Steinmetz's split of the core
+    loss, e.g. Fitzgerald, Kingsley & Umans, *Electric Machinery*, 6th ed., sec. 1.5 "AC
+    excitation", core loss -- section from memory). At rest they hold the shaft like static
+    friction, so they add to both levels.
+
+    Parameters
+    ----------
+    coulomb_Nm : float
+        Coulomb (bearing) friction ``T_c`` [N*m].
+    static_Nm : float
+        Static (breakaway) friction ``T_s`` [N*m] (0: equal to ``T_c``).
+    brush_Nm : float
+        Brush friction [N*m].
+    hysteresis_Nm : float
+        Hysteresis drag torque [N*m].
+
+    Returns
+    -------
+    sliding_Nm : float
+        ``T_c + T_brush + T_h`` [N*m].
+    breakaway_Nm : float
+        ``max(T_s, T_c) + T_brush + T_h`` [N*m].
+    """
+    extra = brush_Nm + hysteresis_Nm
+    return coulomb_Nm + extra, max(static_Nm, coulomb_Nm) + extra
+
+
 @njit(cache=True, error_model="numpy")
 def fill_shaft_rows(
     a: np.ndarray,

@@ -41,6 +41,9 @@ _ENERGY_LABELS = {
     "energy_precharge_loss_J": "pre-charge resistor loss",
     "energy_current_sense_J": "current-sense resistor loss",
     "energy_fuse_arc_J": "supply inductance energy at fuse opening",
+    "energy_brush_drop_J": "brush contact drop",
+    "energy_brush_friction_J": "brush friction",
+    "energy_iron_loss_J": "iron loss (hysteresis + eddy current)",
 }
 
 

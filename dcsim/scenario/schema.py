@@ -220,6 +220,14 @@ KEYS: dict[str, dict[str, KeySpec]] = {
         "coulomb_friction": _q("N*m", "a torque", "0.01 N*m", default=0.0, changeable=True),
         # breakaway torque; None: equal to coulomb_friction (no static excess)
         "static_friction": _q("N*m", "a torque", "0.015 N*m", default=None, changeable=True),
+        # brushes and iron (dcsim.plant.machine): contact drop per brush, brush friction,
+        # hysteresis drag (loss ~ speed) and eddy-current drag (loss ~ speed^2)
+        "brush_drop": _q("V", "a voltage per brush", "1 V", default=0.0),
+        "brush_friction": _q("N*m", "a torque", "2 mN*m", default=0.0),
+        "hysteresis_loss_torque": _q("N*m", "a torque", "1 mN*m", default=0.0),
+        "eddy_loss_coefficient": _q(
+            "N*m*s/rad", "a drag coefficient", "2e-6 N*m*s/rad", default=0.0
+        ),
         # catalogue figures (datasheet import): optional, at the nominal voltage
         "nominal_voltage": _q("V", "a voltage", "24 V", default=None, constraint="positive"),
         "no_load_speed": _q("rad/s", "a speed", "5200 rpm", default=None, constraint="positive"),
@@ -623,6 +631,17 @@ class Motor:
         Static (breakaway) friction torque [N*m], at least ``coulomb_friction``: a shaft at
         rest stays there while ``|K i - T_load|`` does not exceed it. ``None``: equal to
         ``coulomb_friction`` (no static excess). See :mod:`dcsim.plant.mechanics`.
+    brush_drop : float
+        Contact drop of each of the two brushes [V]: the armature sees ``v - 2 V_b sgn(i)``
+        and the current stays at zero while ``|v - K w| < 2 V_b`` (loss
+        ``energy_brush_drop_J``). See :mod:`dcsim.plant.machine`.
+    brush_friction : float
+        Brush friction [N*m], a Coulomb torque of its own (loss ``energy_brush_friction_J``).
+    hysteresis_loss_torque : float
+        Hysteresis drag of the armature iron [N*m], constant magnitude: loss ``T_h |w|``.
+    eddy_loss_coefficient : float
+        Eddy-current drag of the armature iron [N*m*s/rad]: loss ``B_e w^2``. Both iron terms
+        are booked as ``energy_iron_loss_J``.
     kind : str
         Machine kind; only ``"permanent_magnet"`` so far.
     nominal_voltage : float or None
@@ -651,6 +670,10 @@ class Motor:
     viscous_friction: float = 0.0
     coulomb_friction: float = 0.0
     static_friction: float | None = None
+    brush_drop: float = 0.0
+    brush_friction: float = 0.0
+    hysteresis_loss_torque: float = 0.0
+    eddy_loss_coefficient: float = 0.0
     kind: str = "permanent_magnet"
     nominal_voltage: float | None = None
     no_load_speed: float | None = None
