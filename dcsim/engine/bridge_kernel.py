@@ -26,6 +26,11 @@ The averaged model replaces the two legs by their cycle average: ``g = m - 2 t_d
 the same for bipolar and unipolar PWM), ``r_b = 2 R_on (1 - 2 t_d f_s)`` and
 ``v_drop = 4 V_d t_d f_s sigma`` (two diodes conduct during the dead times).
 
+A gearbox arrives as in the core kernel (:mod:`dcsim.engine.kernel`): its constant part in
+``Q_TL``, its Coulomb-like part in ``Q_TC``, split off again (``Q_GEAR_CONST``,
+``Q_GEAR_COULOMB``) only to book the gear's loss in ``A_GEAR``; exact for a load torque of
+constant sign, with the power-flow direction from ``sgn(w) sgn(T_L)``.
+
 Switching instants come from the carrier and the duty, at their exact times inside each PWM
 period; the kernel integrates period by period over the segments between them (and the fixed
 grid of the nominal step). Each segment is advanced exactly by the matrix exponential of the
@@ -86,6 +91,7 @@ from dcsim.engine.bridge_layout import (
     A_FUSE_HEAT,
     A_FUSE_MELT_TIME,
     A_FUSE_PEAK,
+    A_GEAR,
     A_I2T,
     A_ICAP2,
     A_LIMIT_EVENTS,
@@ -165,6 +171,8 @@ from dcsim.engine.bridge_layout import (
     Q_FUSE,
     Q_FUSE_IMIN,
     Q_FUSE_TAU,
+    Q_GEAR_CONST,
+    Q_GEAR_COULOMB,
     Q_IPK,
     Q_J,
     Q_K,
@@ -274,7 +282,7 @@ C_NG = 6  # number of guard rows (without the limit rows)
 C_RSN = 7  # the part of C_RB in the current-sense resistor [ohm]
 C_SGAIN = 8  # sensed current = C_SGAIN * i (1 in-line; the bridge gain g on the bus side)
 N_C = 9
-N_WORK = 20  # values per point kept by `point_values`
+N_WORK = 21  # values per point kept by `point_values`
 CACHE_SLOTS = 4096
 FORM_SLOTS = 256
 MAX_BP = 64  # schedule breakpoints per period beyond the grid
@@ -662,8 +670,8 @@ def point_values(y, md, q, forms, fsc, work, row):
     if md[M_STUCK] == 1:
         work[row, 4] = 0.0
     else:
-        work[row, 4] = q[Q_B] * w * w + q[Q_TC] * md[M_FSIGN] * w
-    work[row, 5] = q[Q_TL] * w
+        work[row, 4] = q[Q_B] * w * w + (q[Q_TC] - q[Q_GEAR_COULOMB]) * md[M_FSIGN] * w
+    work[row, 5] = (q[Q_TL] - q[Q_GEAR_CONST]) * w  # Q_TC, Q_TL hold the gear's parts too
     work[row, 6] = (fsc[C_RB] - fsc[C_RSN]) * i * i + fsc[C_VDROP] * i
     work[row, 7] = fsc[C_GBR] * vn * vn
     work[row, 8] = q[Q_ESR] * icap * icap
@@ -681,6 +689,10 @@ def point_values(y, md, q, forms, fsc, work, row):
     work[row, 17] = fsc[C_GBR] * vn
     work[row, 18] = fsc[C_RSN] * i * i
     work[row, 19] = icap * icap
+    if md[M_STUCK] == 1:
+        work[row, 20] = 0.0
+    else:
+        work[row, 20] = (q[Q_GEAR_COULOMB] * md[M_FSIGN] + q[Q_GEAR_CONST]) * w  # gear loss
 
 
 @njit(cache=True, error_model="numpy", inline="always")
@@ -705,6 +717,7 @@ def add_integrals(tau, t0, md, q, work, acc):
         acc[_ACC_OF_WORK[k]] += w0 * (work[0, k] + work[2, k]) + wm * work[1, k]
     acc[A_SENSE] += w0 * (work[0, 18] + work[2, 18]) + wm * work[1, 18]
     acc[A_ICAP2] += w0 * (work[0, 19] + work[2, 19]) + wm * work[1, 19]
+    acc[A_GEAR] += w0 * (work[0, 20] + work[2, 20]) + wm * work[1, 20]
     for r in range(1, 3):
         t = t0 + 0.5 * tau * r
         ia = math.sqrt(work[r, 0])
@@ -1486,14 +1499,14 @@ def write_row(x, md, q, forms, fsc, t, rec, row, acc, limit_flag, work):
     rec[R_ARMATURE_V, row] = work[0, 12]
     rec[R_BUS_V, row] = work[0, 11]
     rec[R_MOTOR_TORQUE, row] = q[Q_K] * i
-    rec[R_LOAD_TORQUE, row] = q[Q_TL]
+    rec[R_LOAD_TORQUE, row] = q[Q_TL] - q[Q_GEAR_CONST]  # through a loss-free gear
     rec[R_SUPPLY_CURRENT, row] = work[0, 15]
     if q[Q_LOCK] > 0.5:
         fr = 0.0
     elif md[M_STUCK] == 1:
         fr = q[Q_K] * i - q[Q_TL]
     else:
-        fr = q[Q_B] * x[S_W] + q[Q_TC] * md[M_FSIGN]
+        fr = q[Q_B] * x[S_W] + (q[Q_TC] - q[Q_GEAR_COULOMB]) * md[M_FSIGN]
     rec[R_FRICTION_TORQUE, row] = fr
     rec[R_BRIDGE_CURRENT, row] = work[0, 13]
     rec[R_DUTY, row] = q[Q_MOD] if bridge_enabled(md) else 0.0

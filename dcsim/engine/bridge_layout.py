@@ -26,8 +26,8 @@ Q_L = 1  # armature inductance [H]
 Q_K = 2  # torque constant [N*m/A]
 Q_J = 3  # total inertia [kg*m^2]
 Q_B = 4  # viscous friction [N*m*s/rad]
-Q_TC = 5  # Coulomb friction [N*m]
-Q_TL = 6  # load torque [N*m]
+Q_TC = 5  # Coulomb friction [N*m] (with a gear: + its Coulomb-like part Q_GEAR_COULOMB)
+Q_TL = 6  # load torque [N*m] (with a gear: its constant part at the motor shaft)
 Q_LOCK = 7  # 1 when the rotor is locked
 Q_RS = 8  # source + wiring (+ battery internal) resistance [ohm]
 Q_LS = 9  # source inductance [H]
@@ -94,7 +94,9 @@ Q_BMS_VRECLOSE = 69  # ... recloses when the bus falls below this voltage [V] (-
 Q_BMS_TRECLOSE = 70  # ... recloses this long after opening [s] (inf: not)
 Q_TR = 71  # switch turn-on transition time (rise time) [s] (0: no transition-time loss)
 Q_TF = 72  # switch turn-off transition time (fall time) [s]
-N_Q = 73
+Q_GEAR_COULOMB = 73  # the gear's Coulomb-like part T_gear, included in Q_TC [N*m]
+Q_GEAR_CONST = 74  # the gear's part of Q_TL: T_const - T_L / N [N*m]
+N_Q = 75
 
 # Discrete modes (int64)
 M_STUCK = 0  # shaft held at zero speed
@@ -165,7 +167,8 @@ A_BUS_RIPPLE = 41  # largest peak-to-peak bus voltage over one period [V]
 A_BMS_OPEN_TIME = 42  # when the battery disconnect last opened [s] (-1: never)
 A_SWITCH_LOSS = 43  # the switching part of A_BRIDGE [J]
 A_RIPPLE_LAST = 44  # current peak-to-peak over the last complete PWM period [A] (-1: none)
-N_ACC = 45
+A_GEAR = 45  # gear loss [J]
+N_ACC = 46
 
 # Trace columns
 R_TIME = 0

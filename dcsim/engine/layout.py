@@ -18,8 +18,8 @@ P_L = 1  # armature inductance [H]
 P_K = 2  # torque / back-EMF constant [N*m/A]
 P_J = 3  # total inertia, rotor + load [kg*m^2]
 P_B = 4  # viscous friction [N*m*s/rad]
-P_TC = 5  # Coulomb friction [N*m]
-P_TL = 6  # load torque [N*m]
+P_TC = 5  # Coulomb friction [N*m] (with a gear: + its Coulomb-like part P_GEAR_COULOMB)
+P_TL = 6  # load torque [N*m] (with a gear: its constant part at the motor shaft)
 P_LOCK = 7  # 1.0 when the rotor is locked
 P_VS = 8  # source open-circuit voltage [V]
 P_RS = 9  # source resistance [ohm]
@@ -27,7 +27,9 @@ P_C = 10  # bus capacitance [F]
 P_REGEN = 11  # 1.0 when the source takes current back
 P_VCMD = 12  # commanded armature voltage [V]
 P_TS = 13  # static (breakaway) friction [N*m]; 0: equal to P_TC (breakaway = max of both)
-N_PARAM = 14
+P_GEAR_COULOMB = 14  # the gear's Coulomb-like part T_gear, included in P_TC [N*m]
+P_GEAR_CONST = 15  # the gear's part of P_TL: T_const - T_L / N [N*m]
+N_PARAM = 16
 
 # Accumulators (integrated at full rate by the kernel)
 A_I2T = 0  # integral of i^2 [A^2*s]
@@ -43,7 +45,8 @@ A_BUS_MAX = 9  # highest bus voltage [V]
 A_BUS_MIN = 10  # lowest bus voltage [V]
 A_SPLITS = 11  # number of located regime changes (stick/slip, clipping, diode)
 A_COUPLING = 12  # kinetic energy lost when load inertia engages, or carried off when released [J]
-N_ACC = 13
+A_GEAR = 13  # gear loss [J]
+N_ACC = 14
 
 # Recorded columns (kernel order)
 R_TIME = 0
