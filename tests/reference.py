@@ -628,6 +628,7 @@ ENERGY_TERMS = (
     "energy_copper_loss_J",
     "energy_friction_J",
     "energy_to_load_J",
+    "energy_gear_loss_J",
     "energy_shaft_lock_J",
     "energy_coupling_J",
     "energy_brush_drop_J",

@@ -32,6 +32,7 @@ from matplotlib.figure import Figure
 
 from dcsim.checks.runs import CheckRuns
 from dcsim.checks.verdict import Verdict, judged, not_applicable
+from dcsim.engine.assemble import gear_loss_power, shaft_values
 from dcsim.results.trace import SimulationResult
 from dcsim.scenario.schema import Checks, Scenario
 
@@ -66,6 +67,8 @@ class Stop:
         Energy into the brake resistor from the stop's start until the chopper is off [J].
     peak_power_W : float
         Highest power returned to the bus [W].
+    gear_J : float
+        Loss of the gear over the stop [J] (0 without a gear).
     """
 
     start_s: float
@@ -82,11 +85,19 @@ class Stop:
     to_bus_J: float
     to_brake_J: float
     peak_power_W: float
+    gear_J: float = 0.0
 
     @property
     def closed_form_J(self) -> float:
         """Energy reaching the bridge by the closed form (module docstring) [J]."""
-        return self.kinetic_J + self.load_J - self.copper_J - self.friction_J + self.inductance_J
+        return (
+            self.kinetic_J
+            + self.load_J
+            - self.copper_J
+            - self.friction_J
+            - self.gear_J
+            + self.inductance_J
+        )
 
 
 def _integral(t: np.ndarray, y: np.ndarray) -> float:
@@ -114,7 +125,8 @@ def find_stops(sc: Scenario, result: SimulationResult) -> list[Stop]:
         return []
     groups = np.split(idx, np.flatnonzero(np.diff(idx) > 5) + 1)
     stops = []
-    inertia = sc.motor.inertia + sc.load.inertia
+    inertia = shaft_values(sc)["inertia"]  # at the motor shaft, through a gear
+    gear_W = gear_loss_power(sc, t, tr["speed_rad_s"])
     if "winding_resistance_ohm" in tr:
         r = tr["winding_resistance_ohm"]
     else:
@@ -150,6 +162,7 @@ def find_stops(sc: Scenario, result: SimulationResult) -> list[Stop]:
                 to_bus_J=to_bus,
                 to_brake_J=_integral(t[a : e + 1], (tr["bus_voltage_V"] * brake)[a : e + 1]),
                 peak_power_W=float(-np.min(smooth[s])),
+                gear_J=_integral(t[s], gear_W[s]),
             )
         )
     return stops
@@ -262,7 +275,9 @@ def _stop_verdicts(sc: Scenario, ck: Checks, result: SimulationResult, stops: li
                 f"{hard.end_s:.4g} s ({hard.speed_start_rad_s:.4g} -> "
                 f"{hard.speed_end_rad_s:.4g} rad/s): closed form 1/2 J (w1^2 - w2^2) = "
                 f"{hard.kinetic_J:.4g} J + lowered load {hard.load_J:.4g} J - copper "
-                f"{hard.copper_J:.4g} J - friction {hard.friction_J:.4g} J + inductance "
+                f"{hard.copper_J:.4g} J - friction {hard.friction_J:.4g} J"
+                + (f" - gear {hard.gear_J:.4g} J" if hard.gear_J else "")
+                + f" + inductance "
                 f"{hard.inductance_J:.4g} J = {hard.closed_form_J:.4g} J at the bridge; "
                 f"simulated into the bus {hard.to_bus_J:.4g} J (the difference is the bridge's "
                 f"loss); peak returned power {hard.peak_power_W:.4g} W"

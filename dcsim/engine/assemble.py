@@ -87,6 +87,127 @@ def control_grid(sample_s: float, record_s: float, h_target: float) -> tuple[flo
     return h, max(1, round(sample_s / h)), max(1, round(record_s / h))
 
 
+SHAFT_KEYS = ("motor.coulomb_friction", "motor.static_friction", "load.torque", "load.inertia")
+"""Keys whose value the gear and the hoist refer to the motor shaft (events re-map them)."""
+
+
+def shaft_values(sc: Scenario, user: dict | None = None) -> dict[str, float]:
+    """Shaft parameters at the motor side, with the gear and the hoist referred through.
+
+    Parameters
+    ----------
+    sc : Scenario
+        The scenario (its ``gear`` and ``hoist`` tables, the motor's inertia).
+    user : dict, optional
+        Present values of :data:`SHAFT_KEYS` (events change them); default: the scenario's.
+
+    Returns
+    -------
+    dict
+        ``inertia`` (rotor + gear + load / N^2) [kg*m^2], ``load_torque`` (the constant part
+        ``T_const``) [N*m], ``coulomb`` (motor's + the gear's Coulomb-like part), ``static``
+        (0: equal to ``coulomb``; else the motor's + the gear's part), ``gear_coulomb`` and
+        ``gear_constant`` (``T_const - T_L / N``) [N*m], as
+        :func:`dcsim.plant.mechanics.gear_torques` maps a load torque of constant sign.
+        The hoist's load torque is ``m g r`` and its inertia ``m r^2`` at the drum (a rope
+        without stretch or mass; Newton's second law for a point mass on a drum).
+    """
+    from dcsim.plant.mechanics import gear_torques
+
+    if user is None:
+        user = {k: sc.get(k) for k in SHAFT_KEYS}
+    load_torque, load_inertia = float(user["load.torque"]), float(user["load.inertia"])
+    coulomb, static = float(user["motor.coulomb_friction"]), user["motor.static_friction"]
+    gear, hoist = sc.gear, sc.hoist
+    if gear is None and hoist is None:  # no referral: the values as before, bit for bit
+        return {
+            "inertia": sc.motor.inertia + load_inertia,
+            "load_torque": load_torque,
+            "coulomb": coulomb,
+            "static": float(static or 0.0),
+            "gear_coulomb": 0.0,
+            "gear_constant": 0.0,
+        }
+    if hoist is not None:
+        load_torque = hoist.mass * hoist.gravity * hoist.drum_radius
+        load_inertia += hoist.mass * hoist.drum_radius**2
+    ratio, eta_f, eta_b, j_gear = 1.0, 1.0, 1.0, 0.0
+    if gear is not None:
+        ratio, eta_f, eta_b = gear.ratio, gear.forward_efficiency, gear.back_efficiency
+        j_gear = gear.inertia
+    t_const, t_gear, t_ideal = gear_torques(load_torque, ratio, eta_f, eta_b)
+    return {
+        "inertia": sc.motor.inertia + j_gear + load_inertia / ratio**2,
+        "load_torque": t_const,
+        "coulomb": coulomb + t_gear,
+        "static": float(static) + t_gear if static else 0.0,
+        "gear_coulomb": t_gear,
+        "gear_constant": t_const - t_ideal,
+    }
+
+
+def shaft_event_rows(sc: Scenario, param_index: dict[str, int]) -> list[tuple[float, int, float]]:
+    """Event rows ``(time, parameter index, value)`` of the shaft keys with a gear or hoist.
+
+    Each event on a :data:`SHAFT_KEYS` key re-maps all shaft parameters (the gear's parts
+    depend on the load torque and its sign, an event that flips the sign starts a new
+    interval of constant sign with the mapping of the new value); rows are written only for
+    the parameters that change. ``param_index`` maps the names of :func:`shaft_values` to
+    the kernel's indices.
+    """
+    user = {k: sc.get(k) for k in SHAFT_KEYS}
+    now = shaft_values(sc, user)
+    rows = []
+    for ev in sc.events:
+        changed = False
+        for key, value in ev.changes:
+            if key in SHAFT_KEYS:
+                user[key] = float(value)
+                changed = True
+        if not changed:
+            continue
+        new = shaft_values(sc, user)
+        for name in _NAMES:
+            if new[name] != now[name]:
+                rows.append((ev.at, param_index[name], new[name]))
+        now = new
+    return rows
+
+
+def gear_loss_power(sc: Scenario, time_s: np.ndarray, speed_rad_s: np.ndarray) -> np.ndarray:
+    """Power lost in the gear at recorded instants [W] (0 without a gear or hoist).
+
+    ``(T_const - T_L/N + T_gear sgn(w)) w`` with the parts of :func:`shaft_values` as the
+    events leave them at each time (an event at ``t`` counts from ``t`` on).
+    """
+    w = np.asarray(speed_rad_s, dtype=float)
+    t = np.asarray(time_s, dtype=float)
+    if sc.gear is None and sc.hoist is None:
+        return np.zeros_like(w)
+    const = np.full(w.shape, shaft_values(sc)["gear_constant"])
+    coul = np.full(w.shape, shaft_values(sc)["gear_coulomb"])
+    for at, index, value in shaft_event_rows(sc, {n: n for n in _NAMES}):
+        if index == "gear_constant":
+            const[t >= at] = value
+        elif index == "gear_coulomb":
+            coul[t >= at] = value
+    return (const + coul * np.sign(w)) * w
+
+
+_NAMES = ("inertia", "load_torque", "coulomb", "static", "gear_coulomb", "gear_constant")
+
+
+def _shaft_index() -> dict[str, int]:
+    return {
+        "inertia": L.P_J,
+        "load_torque": L.P_TL,
+        "coulomb": L.P_TC,
+        "static": L.P_TS,
+        "gear_coulomb": L.P_GEAR_COULOMB,
+        "gear_constant": L.P_GEAR_CONST,
+    }
+
+
 def parameter_vector(sc: Scenario) -> np.ndarray:
     """Kernel parameter vector [SI] of a scenario at t = 0."""
     p = np.zeros(L.N_PARAM)
@@ -109,6 +230,9 @@ def parameter_vector(sc: Scenario) -> np.ndarray:
     p[L.P_TH] = m.hysteresis_loss_torque
     p[L.P_BE] = m.eddy_loss_coefficient
     p[L.P_VBRUSH] = m.brush_drop
+    if sc.gear is not None or sc.hoist is not None:
+        for name, index in _shaft_index().items():
+            p[index] = shaft_values(sc)[name]
     return p
 
 
@@ -161,8 +285,20 @@ def assemble(sc: Scenario) -> KernelInputs:
     times, idx, vals = [], [], []
     p_ev = p0.copy()
     taus = time_constants(p0)
+    referred = sc.gear is not None or sc.hoist is not None
+    shaft_rows = shaft_event_rows(sc, _shaft_index()) if referred else []
     for n, ev in enumerate(sc.events):
+        if referred:
+            for t_row, i_row, v_row in shaft_rows:
+                if t_row == ev.at:
+                    times.append(t_row)
+                    idx.append(i_row)
+                    vals.append(v_row)
+                    p_ev[i_row] = v_row
+            shaft_rows = [row for row in shaft_rows if row[0] != ev.at]
         for key, value in ev.changes:
+            if referred and key in SHAFT_KEYS:
+                continue
             if key not in PARAM_OF_KEY:
                 raise ScenarioError(
                     f"'{key}' cannot be changed by an event; changeable keys are "
@@ -323,6 +459,19 @@ class BridgeInputs:
     periods_per_sample: int = 0
 
 
+def _bridge_shaft_index() -> dict[str, int]:
+    from dcsim.engine import bridge_layout as B
+
+    return {
+        "inertia": B.Q_J,
+        "load_torque": B.Q_TL,
+        "coulomb": B.Q_TC,
+        "static": B.Q_TS,
+        "gear_coulomb": B.Q_GEAR_COULOMB,
+        "gear_constant": B.Q_GEAR_CONST,
+    }
+
+
 def bridge_parameters(sc: Scenario):
     """Parameter vector [SI] of the bridge kernel at t = 0 and the fuse model (or None)."""
     from dcsim.engine import bridge_layout as B
@@ -341,6 +490,9 @@ def bridge_parameters(sc: Scenario):
     q[B.Q_TH] = m.hysteresis_loss_torque
     q[B.Q_BE] = m.eddy_loss_coefficient
     q[B.Q_TL] = ld.torque
+    if sc.gear is not None or sc.hoist is not None:
+        for name, index in _bridge_shaft_index().items():
+            q[index] = shaft_values(sc)[name]
     q[B.Q_LOCK] = 1.0 if ld.locked else 0.0
     bat = sc.battery
     q[B.Q_RS] = s.resistance + (bat.resistance if bat is not None else 0.0)
@@ -482,8 +634,17 @@ def assemble_bridge(sc: Scenario) -> BridgeInputs:
         "control.voltage": B.Q_VCMD,
     }
     events: list[tuple[float, int, int, float]] = []  # (time, order, index, value)
+    referred = sc.gear is not None or sc.hoist is not None
+    shaft_rows = shaft_event_rows(sc, _bridge_shaft_index()) if referred else []
     for ev in sc.events:
+        if referred:
+            for t_row, i_row, v_row in shaft_rows:
+                if t_row == ev.at:
+                    events.append((t_row, len(events), i_row, v_row))
+            shaft_rows = [row for row in shaft_rows if row[0] != ev.at]
         for key, value in ev.changes:
+            if referred and key in SHAFT_KEYS:
+                continue
             v = float(value)
             if key == "load.inertia":
                 v += sc.motor.inertia

@@ -26,6 +26,11 @@ The averaged model replaces the two legs by their cycle average: ``g = m - 2 t_d
 the same for bipolar and unipolar PWM), ``r_b = 2 R_on (1 - 2 t_d f_s)`` and
 ``v_drop = 4 V_d t_d f_s sigma`` (two diodes conduct during the dead times).
 
+A gearbox arrives as in the core kernel (:mod:`dcsim.engine.kernel`): its constant part in
+``Q_TL``, its Coulomb-like part in ``Q_TC``, split off again (``Q_GEAR_CONST``,
+``Q_GEAR_COULOMB``) only to book the gear's loss in ``A_GEAR``; exact for a load torque of
+constant sign, with the power-flow direction from ``sgn(w) sgn(T_L)``.
+
 Switching instants come from the carrier and the duty, at their exact times inside each PWM
 period; the kernel integrates period by period over the segments between them (and the fixed
 grid of the nominal step). Each segment is advanced exactly by the matrix exponential of the
@@ -97,6 +102,7 @@ from dcsim.engine.bridge_layout import (
     A_FUSE_HEAT,
     A_FUSE_MELT_TIME,
     A_FUSE_PEAK,
+    A_GEAR,
     A_I2T,
     A_ICAP2,
     A_IRON,
@@ -178,6 +184,8 @@ from dcsim.engine.bridge_layout import (
     Q_FUSE,
     Q_FUSE_IMIN,
     Q_FUSE_TAU,
+    Q_GEAR_CONST,
+    Q_GEAR_COULOMB,
     Q_IPK,
     Q_J,
     Q_K,
@@ -296,7 +304,7 @@ C_RSN = 7  # the part of C_RB in the current-sense resistor [ohm]
 C_SGAIN = 8  # sensed current = C_SGAIN * i (1 in-line; the bridge gain g on the bus side)
 C_VBRUSH = 9  # brush contact drop term 2 V_b sigma [V] (in the motor, not the bridge)
 N_C = 10
-N_WORK = 23  # values per point kept by `point_values`
+N_WORK = 24  # values per point kept by `point_values`
 CACHE_SLOTS = 4096
 FORM_SLOTS = 256
 MAX_BP = 64  # schedule breakpoints per period beyond the grid
@@ -692,10 +700,10 @@ def point_values(y, md, q, forms, fsc, work, row):
         work[row, 21] = 0.0
         work[row, 22] = 0.0
     else:
-        work[row, 4] = q[Q_B] * w * w + q[Q_TC] * md[M_FSIGN] * w
+        work[row, 4] = q[Q_B] * w * w + (q[Q_TC] - q[Q_GEAR_COULOMB]) * md[M_FSIGN] * w
         work[row, 21] = q[Q_TBR] * md[M_FSIGN] * w  # brush friction
         work[row, 22] = q[Q_TH] * md[M_FSIGN] * w + q[Q_BE] * w * w  # iron: hysteresis + eddy
-    work[row, 5] = q[Q_TL] * w
+    work[row, 5] = (q[Q_TL] - q[Q_GEAR_CONST]) * w  # Q_TC, Q_TL hold the gear's parts too
     work[row, 6] = (fsc[C_RB] - fsc[C_RSN]) * i * i + fsc[C_VDROP] * i
     work[row, 7] = fsc[C_GBR] * vn * vn
     work[row, 8] = q[Q_ESR] * icap * icap
@@ -714,6 +722,10 @@ def point_values(y, md, q, forms, fsc, work, row):
     work[row, 18] = fsc[C_RSN] * i * i
     work[row, 19] = icap * icap
     work[row, 20] = fsc[C_VBRUSH] * i if md[M_SIGMA] != 0 else 0.0  # brush drop 2 V_b |i|
+    if md[M_STUCK] == 1:
+        work[row, 23] = 0.0
+    else:
+        work[row, 23] = (q[Q_GEAR_COULOMB] * md[M_FSIGN] + q[Q_GEAR_CONST]) * w  # gear loss
 
 
 @njit(cache=True, error_model="numpy", inline="always")
@@ -741,6 +753,7 @@ def add_integrals(tau, t0, md, q, work, acc):
     acc[A_BRUSH_DROP] += w0 * (work[0, 20] + work[2, 20]) + wm * work[1, 20]
     acc[A_BRUSH_FRICTION] += w0 * (work[0, 21] + work[2, 21]) + wm * work[1, 21]
     acc[A_IRON] += w0 * (work[0, 22] + work[2, 22]) + wm * work[1, 22]
+    acc[A_GEAR] += w0 * (work[0, 23] + work[2, 23]) + wm * work[1, 23]
     for r in range(1, 3):
         t = t0 + 0.5 * tau * r
         ia = math.sqrt(work[r, 0])
@@ -1523,7 +1536,7 @@ def write_row(x, md, q, forms, fsc, t, rec, row, acc, limit_flag, work):
     rec[R_ARMATURE_V, row] = work[0, 12]
     rec[R_BUS_V, row] = work[0, 11]
     rec[R_MOTOR_TORQUE, row] = q[Q_K] * i
-    rec[R_LOAD_TORQUE, row] = q[Q_TL]
+    rec[R_LOAD_TORQUE, row] = q[Q_TL] - q[Q_GEAR_CONST]  # through a loss-free gear
     rec[R_SUPPLY_CURRENT, row] = work[0, 15]
     if q[Q_LOCK] > 0.5:
         fr = 0.0
@@ -1531,7 +1544,8 @@ def write_row(x, md, q, forms, fsc, t, rec, row, acc, limit_flag, work):
         fr = q[Q_K] * i - q[Q_TL]
     else:
         sliding, breakaway = dry_drag_levels(q[Q_TC], q[Q_TS], q[Q_TBR], q[Q_TH])
-        fr = (q[Q_B] + q[Q_BE]) * x[S_W] + sliding * md[M_FSIGN]  # with brush and iron drag
+        # with brush and iron drag; without the gear's part (booked as the gear's loss)
+        fr = (q[Q_B] + q[Q_BE]) * x[S_W] + (sliding - q[Q_GEAR_COULOMB]) * md[M_FSIGN]
     rec[R_FRICTION_TORQUE, row] = fr
     rec[R_BRIDGE_CURRENT, row] = work[0, 13]
     rec[R_DUTY, row] = q[Q_MOD] if bridge_enabled(md) else 0.0

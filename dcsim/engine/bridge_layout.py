@@ -26,8 +26,8 @@ Q_L = 1  # armature inductance [H]
 Q_K = 2  # torque constant [N*m/A]
 Q_J = 3  # total inertia [kg*m^2]
 Q_B = 4  # viscous friction [N*m*s/rad]
-Q_TC = 5  # Coulomb friction [N*m]
-Q_TL = 6  # load torque [N*m]
+Q_TC = 5  # Coulomb friction [N*m] (with a gear: + its Coulomb-like part Q_GEAR_COULOMB)
+Q_TL = 6  # load torque [N*m] (with a gear: its constant part at the motor shaft)
 Q_LOCK = 7  # 1 when the rotor is locked
 Q_RS = 8  # source + wiring (+ battery internal) resistance [ohm]
 Q_LS = 9  # source inductance [H]
@@ -98,7 +98,9 @@ Q_VBRUSH = 73  # brush contact drop per brush [V] (two brushes in the armature c
 Q_TBR = 74  # brush friction [N*m] (a Coulomb torque of its own)
 Q_TH = 75  # hysteresis (iron) drag torque [N*m] (constant magnitude)
 Q_BE = 76  # eddy-current (iron) drag coefficient [N*m*s/rad]
-N_Q = 77
+Q_GEAR_COULOMB = 77  # the gear's Coulomb-like part T_gear, included in Q_TC [N*m]
+Q_GEAR_CONST = 78  # the gear's part of Q_TL: T_const - T_L / N [N*m]
+N_Q = 79
 
 # Discrete modes (int64)
 M_STUCK = 0  # shaft held at zero speed
@@ -172,7 +174,8 @@ A_RIPPLE_LAST = 44  # current peak-to-peak over the last complete PWM period [A]
 A_BRUSH_DROP = 45  # brush contact drop loss 2 V_b |i| [J]
 A_BRUSH_FRICTION = 46  # brush friction loss [J]
 A_IRON = 47  # iron loss: hysteresis + eddy-current drag [J]
-N_ACC = 48
+A_GEAR = 48  # gear loss [J]
+N_ACC = 49
 
 # Trace columns
 R_TIME = 0

@@ -22,6 +22,14 @@ their exact instants by splitting the step at the event time.
 The integrals of the summary (I^2 t and every energy term) are accumulated at full rate with
 Simpson's rule on the exact states at the start, middle and end of each (sub-)step.
 
+A gearbox (``[gear]``, :func:`dcsim.plant.mechanics.gear_torques`) reaches the kernel as a
+constant torque in ``P_TL`` and a Coulomb-like torque in ``P_TC``, which is exact for a load
+torque of constant sign with the power-flow direction taken from ``sgn(w) sgn(T_L)``; the
+kernel only splits them off again (``P_GEAR_CONST``, ``P_GEAR_COULOMB``) to book the gear's
+loss in ``A_GEAR`` apart from the friction and the load's work. A load torque that changes
+sign by itself (a spring), the gear's no-load loss and the loss on the torque that
+accelerates the load's inertia are outside this model.
+
 References
 ----------
 .. [1] S. M. Cox and P. C. Matthews, J. Comput. Phys. 176 (2002) 430-455,
@@ -51,6 +59,7 @@ from dcsim.engine.layout import (
     A_COPPER,
     A_COUPLING,
     A_FRICTION,
+    A_GEAR,
     A_I2T,
     A_IRON,
     A_LOAD,
@@ -64,6 +73,8 @@ from dcsim.engine.layout import (
     P_B,
     P_BE,
     P_C,
+    P_GEAR_CONST,
+    P_GEAR_COULOMB,
     P_J,
     P_K,
     P_L,
@@ -109,7 +120,7 @@ from dcsim.plant.mechanics import (
 from dcsim.power.bus import bus_without_capacitor, fill_bus_row
 
 N_REGIME = 36  # 2 shaft states x 3 bridge states x 2 source states x 3 current states
-N_WORK = 13  # values per point kept by `powers`
+N_WORK = 14  # values per point kept by `powers`
 BRIDGE_CONTROL = 0
 BRIDGE_FULL_POS = 1
 BRIDGE_FULL_NEG = 2
@@ -377,7 +388,9 @@ def propagate(x, b, cache, slot, nl_coef, x1, xm, force, dg_vec):
 def powers(x, p, has_cap, r, fsign, work, row):
     """Integrands at ``x`` into ``work[row]``: i^2, source power, source and copper loss,
     friction, load; then bus voltage, armature voltage, bridge and supply current; then brush
-    friction and iron loss (hysteresis ``T_h |w|`` + eddy current ``B_e w^2``)."""
+    friction and iron loss (hysteresis ``T_h |w|`` + eddy current ``B_e w^2``), the brush drop,
+    and the gear loss (``P_TC`` and ``P_TL`` hold the gear's parts too: they are split off
+    here)."""
     vb, va, ib, isup = bus_state(x, p, has_cap, r)
     i = x[X_CURRENT]
     w = x[X_SPEED]
@@ -385,8 +398,8 @@ def powers(x, p, has_cap, r, fsign, work, row):
     work[row, 1] = p[P_VS] * isup
     work[row, 2] = p[P_RS] * isup * isup
     work[row, 3] = p[P_R] * i * i
-    work[row, 4] = p[P_B] * w * w + p[P_TC] * fsign * w
-    work[row, 5] = p[P_TL] * w
+    work[row, 4] = p[P_B] * w * w + (p[P_TC] - p[P_GEAR_COULOMB]) * fsign * w
+    work[row, 5] = (p[P_TL] - p[P_GEAR_CONST]) * w
     work[row, 6] = vb
     work[row, 7] = va
     work[row, 8] = ib
@@ -394,6 +407,7 @@ def powers(x, p, has_cap, r, fsign, work, row):
     work[row, 10] = p[P_TBR] * fsign * w
     work[row, 11] = p[P_TH] * fsign * w + p[P_BE] * w * w
     work[row, 12] = 2.0 * p[P_VBRUSH] * current_sign(r) * i
+    work[row, 13] = (p[P_GEAR_COULOMB] * fsign + p[P_GEAR_CONST]) * w
 
 
 @njit(cache=True, error_model="numpy")
@@ -421,6 +435,7 @@ def accumulate(x0, xm, x1, hh, t0, p, has_cap, r, fsign, acc, work, reuse_start)
     acc[A_BRUSH_FRICTION] += w0 * (work[0, 10] + work[2, 10]) + wm * work[1, 10]
     acc[A_IRON] += w0 * (work[0, 11] + work[2, 11]) + wm * work[1, 11]
     acc[A_BRUSH_DROP] += w0 * (work[0, 12] + work[2, 12]) + wm * work[1, 12]
+    acc[A_GEAR] += w0 * (work[0, 13] + work[2, 13]) + wm * work[1, 13]
     _peaks(xm, t0 + 0.5 * hh, work[1, 6], acc)
     _peaks(x1, t0 + hh, work[2, 6], acc)
 
@@ -638,7 +653,7 @@ def write_row(x, p, r, fsign, t, vb, va, ib, isup, rec, row):
     rec[R_ARMATURE_V, row] = va
     rec[R_BUS_V, row] = vb
     rec[R_MOTOR_TORQUE, row] = p[P_K] * i
-    rec[R_LOAD_TORQUE, row] = p[P_TL]
+    rec[R_LOAD_TORQUE, row] = p[P_TL] - p[P_GEAR_CONST]  # through a loss-free gear
     rec[R_SUPPLY_CURRENT, row] = isup
     if p[P_LOCK] > 0.5:
         fr = 0.0
@@ -646,7 +661,8 @@ def write_row(x, p, r, fsign, t, vb, va, ib, isup, rec, row):
         fr = p[P_K] * i - p[P_TL]  # static friction balances the drive torque
     else:
         sliding, breakaway = dry_drag_levels(p[P_TC], p[P_TS], p[P_TBR], p[P_TH])
-        fr = (p[P_B] + p[P_BE]) * x[X_SPEED] + sliding * fsign  # with brush and iron drag
+        # with brush and iron drag; without the gear's part (booked as the gear's loss)
+        fr = (p[P_B] + p[P_BE]) * x[X_SPEED] + (sliding - p[P_GEAR_COULOMB]) * fsign
     rec[R_FRICTION_TORQUE, row] = fr
     rec[R_BRIDGE_CURRENT, row] = ib
 

@@ -18,8 +18,8 @@ P_L = 1  # armature inductance [H]
 P_K = 2  # torque / back-EMF constant [N*m/A]
 P_J = 3  # total inertia, rotor + load [kg*m^2]
 P_B = 4  # viscous friction [N*m*s/rad]
-P_TC = 5  # Coulomb friction [N*m]
-P_TL = 6  # load torque [N*m]
+P_TC = 5  # Coulomb friction [N*m] (with a gear: + its Coulomb-like part P_GEAR_COULOMB)
+P_TL = 6  # load torque [N*m] (with a gear: its constant part at the motor shaft)
 P_LOCK = 7  # 1.0 when the rotor is locked
 P_VS = 8  # source open-circuit voltage [V]
 P_RS = 9  # source resistance [ohm]
@@ -31,7 +31,9 @@ P_TBR = 14  # brush friction [N*m] (a Coulomb torque of its own)
 P_TH = 15  # hysteresis (iron) drag torque [N*m] (constant magnitude)
 P_BE = 16  # eddy-current (iron) drag coefficient [N*m*s/rad]
 P_VBRUSH = 17  # brush contact drop per brush [V] (two brushes in the armature circuit)
-N_PARAM = 18
+P_GEAR_COULOMB = 18  # the gear's Coulomb-like part T_gear, included in P_TC [N*m]
+P_GEAR_CONST = 19  # the gear's part of P_TL: T_const - T_L / N [N*m]
+N_PARAM = 20
 
 # Accumulators (integrated at full rate by the kernel)
 A_I2T = 0  # integral of i^2 [A^2*s]
@@ -50,7 +52,8 @@ A_COUPLING = 12  # kinetic energy lost when load inertia engages, or carried off
 A_BRUSH_FRICTION = 13  # brush friction loss [J]
 A_IRON = 14  # iron loss: hysteresis + eddy-current drag [J]
 A_BRUSH_DROP = 15  # brush contact drop loss 2 V_b |i| [J]
-N_ACC = 16
+A_GEAR = 16  # gear loss [J]
+N_ACC = 17
 
 # Recorded columns (kernel order)
 R_TIME = 0

@@ -121,6 +121,7 @@ def energy_account(
         "energy_copper_loss_J": float(acc[L.A_COPPER]),
         "energy_friction_J": float(acc[L.A_FRICTION]),
         "energy_to_load_J": float(acc[L.A_LOAD]),
+        "energy_gear_loss_J": float(acc[L.A_GEAR]),
         "energy_shaft_lock_J": float(acc[L.A_LOCK]),
         "energy_coupling_J": float(acc[L.A_COUPLING]),
         "energy_brush_drop_J": float(acc[L.A_BRUSH_DROP]),

@@ -108,6 +108,7 @@ def bridge_energy_account(bi: BridgeInputs, acc, xf, qf) -> dict[str, float]:
         "energy_copper_loss_J": float(acc[B.A_COPPER]),
         "energy_friction_J": float(acc[B.A_FRICTION]),
         "energy_to_load_J": float(acc[B.A_LOAD]),
+        "energy_gear_loss_J": float(acc[B.A_GEAR]),
         "energy_shaft_lock_J": float(acc[B.A_LOCK]),
         "energy_coupling_J": float(acc[B.A_COUPLING]),
         "energy_bridge_loss_J": float(acc[B.A_BRIDGE]),

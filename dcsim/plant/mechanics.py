@@ -179,3 +179,56 @@ def inertia_change(speed_rad_s: float, j_old: float, j_new: float) -> tuple[floa
         w_new = j_old * w / j_new
         return w_new, 0.5 * j_old * w * w - 0.5 * j_new * w_new * w_new
     return w, 0.5 * (j_old - j_new) * w * w
+
+
+@njit(cache=True, error_model="numpy")
+def gear_torques(
+    load_torque_Nm: float, ratio: float, forward_efficiency: float, back_efficiency: float
+) -> tuple[float, float, float]:
+    """A load torque of constant sign seen at the motor shaft through a lossy gear.
+
+    The gear passes on the fraction ``eta_f`` of the power when the motor drives the load and
+    ``eta_b`` when the load drives the motor (the usual efficiency model of a gear train with
+    separate forward and back-driving efficiencies, e.g. Shigley's *Mechanical Engineering
+    Design*, worm gearing: efficiency in each direction and self-locking when the
+    back-driving efficiency is zero -- chapter from memory). With the load torque ``T_L`` at
+    the load shaft and ``N`` motor turns per load turn the motor shaft sees::
+
+        T_L / (N eta_f)   when sgn(w) sgn(T_L) > 0  (the motor drives the load)
+        eta_b T_L / N     when sgn(w) sgn(T_L) < 0  (the load drives the motor)
+
+    which is exactly ``T_const + T_gear sgn(w)`` with the constant part ``T_const = T_L
+    (1/eta_f + eta_b) / (2N)`` and the Coulomb-like part ``T_gear = |T_L| (1/eta_f - eta_b)
+    / (2N)``. So the kernels treat the gear as a constant torque plus dry friction: at rest
+    the shaft holds while ``|K i - T_const| <= T_gear`` (plus the motor's own breakaway
+    torque); with ``eta_b = 0`` the hanging load alone cannot turn the motor (self-locking).
+
+    Limits of the model: the load torque must keep its sign while the shaft turns (gravity,
+    a winch without springs); the direction of the power flow is taken from ``sgn(w)
+    sgn(T_L)``, so the torque that accelerates the load's own inertia passes the gear without
+    loss, and a gear without load torque has no loss at all (no churning or no-load loss).
+
+    Parameters
+    ----------
+    load_torque_Nm : float
+        Load torque at the load shaft, opposing positive rotation [N*m].
+    ratio : float
+        Motor turns per load turn ``N`` [-].
+    forward_efficiency : float
+        ``eta_f`` (motor drives the load) [-], ``0 < eta_f <= 1``.
+    back_efficiency : float
+        ``eta_b`` (load drives the motor) [-], ``0 <= eta_b <= 1``.
+
+    Returns
+    -------
+    constant_Nm : float
+        ``T_const`` at the motor shaft [N*m].
+    coulomb_Nm : float
+        ``T_gear`` at the motor shaft [N*m] (>= 0).
+    ideal_Nm : float
+        ``T_L / N``, the torque a loss-free gear would pass [N*m]; the load's power at the
+        motor shaft is ``(T_L / N) w``, the gear's loss ``(T_const - T_L/N) w + T_gear |w|``.
+    """
+    driving = load_torque_Nm / (ratio * forward_efficiency)  # the motor drives the load
+    driven = back_efficiency * load_torque_Nm / ratio  # the load drives the motor
+    return 0.5 * (driving + driven), 0.5 * abs(driving - driven), load_torque_Nm / ratio

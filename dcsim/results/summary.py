@@ -31,6 +31,7 @@ _ENERGY_LABELS = {
     "energy_copper_loss_J": "armature copper loss",
     "energy_friction_J": "friction (viscous + coulomb)",
     "energy_to_load_J": "to the load",
+    "energy_gear_loss_J": "gear loss",
     "energy_shaft_lock_J": "absorbed by the shaft lock",
     "energy_coupling_J": "lost or carried off by load coupling",
     "kinetic_energy_change_J": "change of kinetic energy",

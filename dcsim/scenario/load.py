@@ -54,6 +54,8 @@ from dcsim.scenario.schema import (
     CurrentLoop,
     Event,
     Fuse,
+    Gear,
+    Hoist,
     KeySpec,
     Load,
     Motor,
@@ -106,6 +108,8 @@ _TABLE_TYPES: dict[str, type] = {
     "sensors": Sensors,
     "thermal": Thermal,
     "checks": Checks,
+    "gear": Gear,
+    "hoist": Hoist,
 }
 """Dataclass of each table; its fields are the table's keys in :data:`KEYS`."""
 
@@ -1021,7 +1025,27 @@ def _rule_design_checks(state: dict[str, Any], given: set[str], show: _Show) -> 
     return None
 
 
+def _rule_gear_and_hoist(state: dict[str, Any], given: set[str], show: _Show) -> _Problem:
+    """Gear efficiencies are fractions; a hoist is the load torque, so not both."""
+    if "gear.ratio" in state:
+        for name, low in (("gear.forward_efficiency", "0 <"), ("gear.back_efficiency", "0 <=")):
+            if state[name] > 1.0:
+                return (
+                    name,
+                    f"expected an efficiency with {low} eta <= 1 (a fraction of the power "
+                    f'passed on; 0.7 or "70 %"), found {show(name)}',
+                )
+    if "hoist.mass" in state and "load.torque" in given and state["load.torque"] != 0.0:
+        return (
+            "load.torque",
+            "expected no load.torque with a [hoist] table (the hanging mass sets the load "
+            f"torque, m g r), found {show('load.torque')}",
+        )
+    return None
+
+
 _RULES: tuple[_Rule, ...] = (
+    _rule_gear_and_hoist,
     _rule_design_checks,
     _rule_intervals_within_run,
     _rule_bus_needs_resistance,
@@ -1099,6 +1123,13 @@ def _assemble(read: _Read, source: str, *, result_source: str) -> Scenario:
                     f"{event.at_shown}; set thermal.coupled = false to keep the events",
                     source=source,
                     key=f"{_EVENTS}[{event.index}].set.motor.resistance",
+                )
+            if name == "load.torque" and "hoist" in present:
+                raise ScenarioError(
+                    "expected no event on load.torque when the scenario has a [hoist] table "
+                    f"(the hanging mass sets the load torque), found one at {event.at_shown}",
+                    source=source,
+                    key=f"{_EVENTS}[{event.index}].set.load.torque",
                 )
             if name == "supply.voltage" and present & {"battery", "supply_profile"}:
                 part = "battery" if "battery" in present else "supply_profile"

@@ -115,6 +115,9 @@ AUDIBLE_LIMIT_HZ = 20e3
 """PWM frequencies below this lie in the audible band [Hz] (the usual line for a drive that
 must not whine; common practice (no source))."""
 
+STANDARD_GRAVITY_M_S2 = 9.80665
+"""Standard acceleration of gravity [m/s^2] (3rd CGPM, 1901; the exact defined value)."""
+
 CONTROLLED = "<controlled>"
 """Placeholder unit of reference values: A, rad/s or rad, as the control mode says."""
 
@@ -246,6 +249,27 @@ KEYS: dict[str, dict[str, KeySpec]] = {
         "torque": _q("N*m", "a torque", "0.02 N*m", default=0.0, constraint="any", changeable=True),
         "locked": KeySpec(
             None, kind="bool", default=False, noun="true or false", example="false", changeable=True
+        ),
+    },
+    # gearbox between the motor shaft and the load (the [load] keys then mean the load side)
+    "gear": {
+        "ratio": _q("", "a gear ratio (motor turns per load turn)", "40", constraint="positive"),
+        "forward_efficiency": _q(
+            "", "an efficiency (0 < eta <= 1)", "0.7", default=1.0, constraint="positive"
+        ),
+        "back_efficiency": _q("", "an efficiency (0 <= eta <= 1)", "0.3", default=1.0),
+        "inertia": _q("kg*m^2", "a moment of inertia", "2e-5 kg*m^2", default=0.0),
+    },
+    # rope hoist: a mass hanging from a drum on the load side of the gear (or on the motor)
+    "hoist": {
+        "mass": _q("kg", "a mass", "250 kg", constraint="positive"),
+        "drum_radius": _q("m", "a length", "0.1 m", constraint="positive"),
+        "gravity": _q(
+            "m/s^2",
+            "an acceleration",
+            "9.80665 m/s^2",
+            default=STANDARD_GRAVITY_M_S2,
+            constraint="positive",
         ),
     },
     "supply": {
@@ -555,6 +579,8 @@ OPTIONAL_TABLES = (
     "sensors",
     "thermal",
     "checks",
+    "gear",
+    "hoist",
 )
 """Tables that describe a part the drive may not have: absent means no such part."""
 DERIVED_FIELDS = {
@@ -708,6 +734,48 @@ class Load:
     inertia: float = 0.0
     torque: float = 0.0
     locked: bool = False
+
+
+@dataclass(frozen=True)
+class Gear:
+    """Gearbox between the motor shaft and the load; the ``[load]`` keys mean the load side.
+
+    Attributes
+    ----------
+    ratio : float
+        Motor turns per load turn, ``N = w_motor / w_load`` [-] (> 0).
+    forward_efficiency : float
+        Efficiency when the motor drives the load, ``0 < eta_f <= 1`` [-].
+    back_efficiency : float
+        Efficiency when the load drives the motor, ``0 <= eta_b <= 1`` [-]; 0 is a
+        self-locking gear (a worm gear of small lead angle).
+    inertia : float
+        Inertia of the gear referred to the motor shaft [kg*m^2].
+    """
+
+    ratio: float = 1.0
+    forward_efficiency: float = 1.0
+    back_efficiency: float = 1.0
+    inertia: float = 0.0
+
+
+@dataclass(frozen=True)
+class Hoist:
+    """A mass hanging on a rope from a drum on the load shaft (lifting = positive speed).
+
+    Attributes
+    ----------
+    mass : float
+        Suspended mass [kg].
+    drum_radius : float
+        Radius at which the rope leaves the drum [m].
+    gravity : float
+        Acceleration of gravity [m/s^2] (default: standard gravity).
+    """
+
+    mass: float = 0.0
+    drum_radius: float = 0.0
+    gravity: float = STANDARD_GRAVITY_M_S2
 
 
 @dataclass(frozen=True)
@@ -1466,7 +1534,8 @@ class Scenario:
     ----------
     simulation, motor, load, supply, control, about, bridge
         The tables of the file.
-    brake, protection, precharge, battery, fuse, supply_profile, sensors, thermal, checks
+    brake, protection, precharge, battery, fuse, supply_profile, sensors, thermal, checks,
+    gear, hoist
         Optional parts; ``None`` when the file has no such table.
     events : tuple of Event
         Sorted by time (stable for equal times, in file order).
@@ -1490,6 +1559,8 @@ class Scenario:
     sensors: Sensors | None = None
     thermal: Thermal | None = None
     checks: Checks | None = None
+    gear: Gear | None = None
+    hoist: Hoist | None = None
     events: tuple[Event, ...] = ()
     source: str = "<scenario>"
 

@@ -49,6 +49,8 @@ _TABLE_ORDER = (
     "simulation",
     "motor",
     "load",
+    "gear",
+    "hoist",
     "supply",
     "bridge",
     "brake",
