@@ -132,7 +132,9 @@ def controller_inputs(sc: Scenario) -> ControllerInputs:
     cp[C.C_DELAY] = 1.0 if ctl.computation_delay else 0.0
     cp[C.C_H] = base
     cp[C.C_K] = sc.motor.torque_constant
-    cp[C.C_J] = sc.motor.inertia + sc.load.inertia
+    from dcsim.engine.assemble import shaft_values  # (engine.assemble imports this module)
+
+    cp[C.C_J] = shaft_values(sc)["inertia"]  # referred through a gear / hoist if any
     cp[C.C_BV] = sc.motor.viscous_friction
     cp[C.C_TC] = sc.motor.coulomb_friction
     cp[C.C_BUS_LIMIT] = 1.0

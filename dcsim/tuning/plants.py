@@ -139,7 +139,14 @@ def _loop_resistance(sc: Scenario) -> float:
 def _mechanics(sc: Scenario) -> tuple[float, float, float]:
     """Torque constant [N*m/A], total inertia [kg*m^2] and viscous friction [N*m*s/rad]."""
     m = sc.motor
-    return m.torque_constant, m.inertia + sc.load.inertia, m.viscous_friction
+    return m.torque_constant, _inertia(sc), m.viscous_friction
+
+
+def _inertia(sc: Scenario) -> float:
+    """Total inertia at the motor shaft [kg*m^2] (a gear and a hoist referred through)."""
+    from dcsim.engine.assemble import shaft_values
+
+    return shaft_values(sc)["inertia"]
 
 
 def _delay_z(n: int, h: float) -> control.TransferFunction:
@@ -182,7 +189,7 @@ def armature_plant(sc: Scenario) -> tuple[control.TransferFunction, str]:
     """``i/v`` of the armature (continuous) and the assumption it rests on."""
     m, ld = sc.motor, sc.load
     r = m.resistance + (sc.supply.resistance if sc.supply.capacitance == 0 else 0.0)
-    lo, k, j, b = m.inductance, m.torque_constant, m.inertia + ld.inertia, m.viscous_friction
+    lo, k, j, b = m.inductance, m.torque_constant, _inertia(sc), m.viscous_friction
     s = control.tf("s")
     cur = sc.control.current
     if ld.locked or (cur is not None and cur.back_emf_feedforward):
@@ -239,11 +246,7 @@ def loop_plant(
         notes.append(f"the {inner_name} loop closed with its gains (sampled at {h_in:g} s)")
         small = _equivalent_time_constant(t_in_d)
         if loop == "speed":
-            k, j, b = (
-                sc.motor.torque_constant,
-                sc.motor.inertia + sc.load.inertia,
-                sc.motor.viscous_friction,
-            )
+            k, j, b = _mechanics(sc)
             mech = k / (j * s + b)
             filt = control.tf([1], [1])
             sens = sc.sensors
