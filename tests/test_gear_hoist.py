@@ -312,3 +312,21 @@ def test_harbour_hoist_scenario_runs_and_holds():
     assert_energy_closes(res.summary)
     assert res.summary["energy_gear_loss_J"] > 0.0
     assert math.isfinite(res.summary["final_speed_rad_s"])
+
+
+def test_controller_and_tuning_see_the_inertia_at_the_motor_shaft():
+    # The speed loop's acceleration feed-forward and the tuning plant both need the inertia
+    # the motor accelerates: rotor + gear + load / N^2 (J_TOTAL above, same source).
+    from dcsim.controllers import layout as C
+    from dcsim.controllers.assemble import controller_inputs
+    from dcsim.tuning.plants import _mechanics
+
+    text = _text(0.0).replace(
+        "[control]\nvoltage = 0.0\n",
+        '[control]\nmode = "speed"\n[control.current]\nkp = 2.0\nki = 2000.0\n'
+        'sample_time = "50 us"\n[control.speed]\nkp = 0.05\nki = 1.0\nsample_time = "200 us"\n'
+        'limit = "10 A"\n[control.reference]\nkind = "step"\nvalue = "100 rad/s"\n',
+    )
+    sc = dcsim.load_scenario_text(text)
+    assert controller_inputs(sc).params[C.C_J] == pytest.approx(J_TOTAL, rel=1e-12)
+    assert _mechanics(sc)[1] == pytest.approx(J_TOTAL, rel=1e-12)
