@@ -41,7 +41,7 @@ _ENERGY_LABELS = {
     "energy_capacitor_esr_J": "bus capacitor ESR loss",
     "energy_precharge_loss_J": "pre-charge resistor loss",
     "energy_current_sense_J": "current-sense resistor loss",
-    "energy_fuse_arc_J": "supply inductance energy at fuse opening",
+    "energy_fuse_arc_J": "supply inductance at the fuse opening",
     "energy_brush_drop_J": "brush contact drop",
     "energy_brush_friction_J": "brush friction",
     "energy_iron_loss_J": "iron loss (hysteresis + eddy current)",
