@@ -29,6 +29,7 @@ PARAM_OF_KEY: dict[str, int] = {
     "supply.resistance": L.P_RS,
     "supply.regenerative": L.P_REGEN,
     "control.voltage": L.P_VCMD,
+    "motor.field_voltage": L.P_VF,
 }
 """Kernel parameter index of every key that events may change."""
 
@@ -233,7 +234,40 @@ def parameter_vector(sc: Scenario) -> np.ndarray:
     if sc.gear is not None or sc.hoist is not None:
         for name, index in _shaft_index().items():
             p[index] = shaft_values(sc)[name]
+    machine_parameters(sc, p)
     return p
+
+
+def machine_parameters(sc: Scenario, p: np.ndarray) -> None:
+    """Fill the machine-library entries ``P_KIND .. P_GAP`` of ``p`` (in place) [SI].
+
+    The series machine's field entries are its series winding; a compound machine's series
+    winding is ``P_RSE, P_LSE`` with the signed turns ratio ``P_NSE`` (negative:
+    differential). The over-speed limit defaults, for the series and the differential
+    compound machine (which run away without load), to 3 x ``V_s / K`` with ``K`` the
+    derived torque constant.
+    """
+    m = sc.motor
+    p[L.P_KIND] = L.MACHINE_CODE[m.kind]
+    p[L.P_RF] = m.field_resistance or 0.0
+    p[L.P_LF] = m.field_inductance or 0.0
+    p[L.P_MAF] = m.mutual_inductance or 0.0
+    p[L.P_VF] = m.field_voltage or 0.0
+    p[L.P_RSE] = m.series_field_resistance or 0.0
+    p[L.P_LSE] = m.series_field_inductance or 0.0
+    n_se = m.series_turns_ratio or 0.0
+    p[L.P_NSE] = -n_se if m.compound == "differential" else n_se
+    p[L.P_WBASE] = m.base_speed or 0.0
+    runaway = m.kind == "series" or (m.kind == "compound" and m.compound == "differential")
+    default_max = 3.0 * sc.supply.voltage / m.torque_constant if runaway else 0.0
+    p[L.P_WMAX] = m.max_speed if m.max_speed is not None else default_max
+    p[L.P_NSEG] = m.commutator_segments or 0.0
+    p[L.P_POLES] = m.pole_pairs
+    p[L.P_J1] = m.inertia + (sc.gear.inertia if sc.gear is not None else 0.0)
+    if sc.shaft is not None:
+        p[L.P_KSH] = sc.shaft.stiffness
+        p[L.P_CSH] = sc.shaft.damping
+        p[L.P_GAP] = sc.shaft.backlash
 
 
 def time_constants(p: np.ndarray) -> dict[str, float]:
@@ -307,6 +341,20 @@ def assemble(sc: Scenario) -> KernelInputs:
                     key=f"events[{n}].set",
                 )
             v = float(value)
+            if key == "motor.field_voltage" and sc.motor.kind != "separately_excited":
+                raise ScenarioError(
+                    "expected no event on motor.field_voltage: only a separately excited "
+                    f"machine has a field supply, found one on a {sc.motor.kind} machine",
+                    source=sc.source,
+                    key=f"events[{n}].set.{key}",
+                )
+            if key == "load.inertia" and sc.shaft is not None:
+                raise ScenarioError(
+                    "expected no event on load.inertia with a compliant [shaft] (a mass "
+                    "engaging on the far side of the shaft is not modelled), found one",
+                    source=sc.source,
+                    key=f"events[{n}].set.{key}",
+                )
             if key == "load.inertia":
                 v += sc.motor.inertia
             times.append(ev.at)

@@ -33,7 +33,37 @@ P_BE = 16  # eddy-current (iron) drag coefficient [N*m*s/rad]
 P_VBRUSH = 17  # brush contact drop per brush [V] (two brushes in the armature circuit)
 P_GEAR_COULOMB = 18  # the gear's Coulomb-like part T_gear, included in P_TC [N*m]
 P_GEAR_CONST = 19  # the gear's part of P_TL: T_const - T_L / N [N*m]
-N_PARAM = 20
+# machine library (read by dcsim.engine.machine_kernel only; the other kernels ignore them)
+P_KIND = 20  # machine kind code, MACHINE_* below
+P_RF = 21  # field winding resistance (series machine: the series winding's) [ohm]
+P_LF = 22  # field winding inductance (series machine: the series winding's) [H]
+P_MAF = 23  # field-armature mutual inductance, back-EMF = M i_f w below saturation [H]
+P_VF = 24  # field supply voltage of the separately excited machine [V]
+P_RSE = 25  # compound machine: series winding resistance [ohm]
+P_LSE = 26  # compound machine: series winding inductance [H]
+P_NSE = 27  # compound machine: series ampere-turns per armature amp in field amps, signed [-]
+P_WBASE = 28  # base speed above which the field is weakened (0: no weakening) [rad/s]
+P_WMAX = 29  # over-speed limit that stops the run (0: none) [rad/s]
+P_NSEG = 30  # commutator segments (coils) for the torque ripple (0: smooth) [-]
+P_POLES = 31  # pole pairs [-]
+P_J1 = 32  # inertia on the motor side of a compliant shaft [kg*m^2]
+P_KSH = 33  # shaft stiffness (0: rigid) [N*m/rad]
+P_CSH = 34  # shaft damping [N*m*s/rad]
+P_GAP = 35  # backlash, total angular play at the motor shaft [rad]
+N_PARAM = 36
+
+MACHINE_PM = 0
+MACHINE_SEPARATE = 1
+MACHINE_SHUNT = 2
+MACHINE_SERIES = 3
+MACHINE_COMPOUND = 4
+MACHINE_CODE = {
+    "permanent_magnet": MACHINE_PM,
+    "separately_excited": MACHINE_SEPARATE,
+    "shunt": MACHINE_SHUNT,
+    "series": MACHINE_SERIES,
+    "compound": MACHINE_COMPOUND,
+}
 
 # Accumulators (integrated at full rate by the kernel)
 A_I2T = 0  # integral of i^2 [A^2*s]
@@ -88,3 +118,4 @@ STATUS_OK = 0
 STATUS_NONFINITE = 1
 STATUS_REGEN_NO_PATH = 2
 STATUS_BUS_NEGATIVE = 3
+STATUS_OVERSPEED = 4

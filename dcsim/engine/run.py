@@ -188,6 +188,10 @@ def _simulate_electrical(
     scenario: Scenario, progress: Callable[[float], None] | None = None
 ) -> SimulationResult:
     """:func:`simulate` without the winding's thermal model."""
+    from dcsim.engine.machine_run import needs_machine_kernel, simulate_machine
+
+    if needs_machine_kernel(scenario):
+        return simulate_machine(scenario, progress)
     if scenario.bridge.model != "ideal":
         return _simulate_bridge(scenario, progress)
     ki = assemble(scenario)

@@ -36,7 +36,7 @@ else:  # pragma: no cover - Python 3.10
     import tomli as tomllib
 
 from dcsim.errors import ScenarioError
-from dcsim.scenario import datasheet
+from dcsim.scenario import datasheet, machines
 from dcsim.scenario.schema import (
     CONTROLLED,
     CONTROLLED_UNITS,
@@ -65,6 +65,7 @@ from dcsim.scenario.schema import (
     Reference,
     Scenario,
     Sensors,
+    Shaft,
     Simulation,
     SpeedLoop,
     Supply,
@@ -110,22 +111,17 @@ _TABLE_TYPES: dict[str, type] = {
     "checks": Checks,
     "gear": Gear,
     "hoist": Hoist,
+    "shaft": Shaft,
 }
 """Dataclass of each table; its fields are the table's keys in :data:`KEYS`."""
 
 _EVENTS = "events"
 _EVENT_FIELDS = ("at", "set")
 
-_PLANNED_KEYS: dict[str, str] = {
-    "motor.field_resistance": "wound-field machines",
-    "motor.field_inductance": "wound-field machines",
-    "motor.mutual_inductance": "wound-field machines",
-}
+_PLANNED_KEYS: dict[str, str] = {}
 """Names the contract announces that this version does not read yet (for clearer messages)."""
 
-_PLANNED_CHOICES: dict[str, tuple[str, ...]] = {
-    "motor.kind": ("separately_excited", "shunt", "series", "compound"),
-}
+_PLANNED_CHOICES: dict[str, tuple[str, ...]] = {}
 """Choices the contract announces that this version does not accept yet."""
 
 
@@ -1063,7 +1059,12 @@ def _assemble(read: _Read, source: str, *, result_source: str) -> Scenario:
             raise _missing_table(table, source)
     if "battery" in read.tables:
         _battery_sets_supply_voltage(values, read, source)
-    motor = _derive_motor(values, read.given, source)
+    if values.get("motor.kind", "permanent_magnet") != "permanent_magnet":
+        for key, spec in KEYS["motor"].items():
+            values.setdefault(f"motor.{key}", None if spec.default is REQUIRED else spec.default)
+        motor = machines.wound_field_derivation(values, read.given, source)
+    else:
+        motor = _derive_motor(values, read.given, source)
     for table, specs in KEYS.items():
         if table in OPTIONAL_TABLES and table not in read.tables:
             continue
@@ -1089,6 +1090,7 @@ def _assemble(read: _Read, source: str, *, result_source: str) -> Scenario:
 
     present = {t for t in OPTIONAL_TABLES if t in read.tables}
     problem = _power_stage_problem(values, present, read.given, show)
+    problem = problem or machines.machine_problem(values, present, read.given, show)
     problem = problem or _first_problem(values, read.given, show)
     problem = problem or _control_problem(values, present, read.given, show)
     if problem is not None:

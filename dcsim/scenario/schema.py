@@ -194,7 +194,7 @@ KEYS: dict[str, dict[str, KeySpec]] = {
             default="permanent_magnet",
             noun="a motor kind",
             example="permanent_magnet",
-            choices=("permanent_magnet",),
+            choices=("permanent_magnet", "separately_excited", "shunt", "series", "compound"),
         ),
         # resistance, torque_constant and inertia: required unless the catalogue keys below
         # give them (dcsim.scenario.datasheet derives them; default None = "not written").
@@ -230,6 +230,47 @@ KEYS: dict[str, dict[str, KeySpec]] = {
         "hysteresis_loss_torque": _q("N*m", "a torque", "1 mN*m", default=0.0),
         "eddy_loss_coefficient": _q(
             "N*m*s/rad", "a drag coefficient", "2e-6 N*m*s/rad", default=0.0
+        ),
+        # wound-field machines (dcsim.engine.machine_kernel): the field winding, its flux
+        # (mutual inductance, or a magnetisation table of field current against back-EMF at
+        # magnetisation_speed), the separate field's supply and base speed, the compound
+        # machine's series winding; the over-speed limit that stops a run
+        "field_resistance": _q(
+            "ohm", "a resistance", "120 ohm", default=None, constraint="positive"
+        ),
+        "field_inductance": _q("H", "an inductance", "8 H", default=None, constraint="positive"),
+        "mutual_inductance": _q("H", "an inductance", "0.9 H", default=None, constraint="positive"),
+        "magnetisation": _pairs(
+            "A", "V", "a table of field current and back-EMF", "[['0 A', '0 V'], ['1 A', '180 V']]"
+        ),
+        "magnetisation_speed": _q(
+            "rad/s", "a speed", "1500 rpm", default=None, constraint="positive"
+        ),
+        "field_voltage": _q(
+            "V", "a voltage", "110 V", default=None, constraint="positive", changeable=True
+        ),
+        "base_speed": _q("rad/s", "a speed", "1500 rpm", default=None, constraint="positive"),
+        "compound": _choice("cumulative", "a compound connection", ("cumulative", "differential")),
+        "series_field_resistance": _q(
+            "ohm", "a resistance", "0.05 ohm", default=None, constraint="positive"
+        ),
+        "series_field_inductance": _q(
+            "H", "an inductance", "2 mH", default=None, constraint="positive"
+        ),
+        "series_turns_ratio": _q(
+            "",
+            "a ratio (series ampere-turns per armature amp, in field amps)",
+            "0.02",
+            default=None,
+            constraint="positive",
+        ),
+        "max_speed": _q("rad/s", "a speed", "4000 rpm", default=None, constraint="positive"),
+        # commutator ripple (off by default): segments = coils of the armature winding
+        "commutator_segments": _q(
+            "", "a whole number of segments (>= 2)", "12", default=None, constraint="positive"
+        ),
+        "pole_pairs": _q(
+            "", "a whole number of pole pairs", "1", default=1.0, constraint="positive"
         ),
         # catalogue figures (datasheet import): optional, at the nominal voltage
         "nominal_voltage": _q("V", "a voltage", "24 V", default=None, constraint="positive"),
@@ -271,6 +312,13 @@ KEYS: dict[str, dict[str, KeySpec]] = {
             default=STANDARD_GRAVITY_M_S2,
             constraint="positive",
         ),
+    },
+    # compliant shaft between the motor and the load, at the motor shaft (dcsim.engine.
+    # machine_kernel): the rotor (and gear) on one side, the load on the other
+    "shaft": {
+        "stiffness": _q("N*m/rad", "a torsional stiffness", "400 N*m/rad", constraint="positive"),
+        "damping": _q("N*m*s/rad", "a damping coefficient", "0.02 N*m*s/rad", default=0.0),
+        "backlash": _q("rad", "an angle (total play)", "0.5 deg", default=0.0),
     },
     "supply": {
         "voltage": _q("V", "a voltage", "24 V", constraint="nonnegative", changeable=True),
@@ -581,6 +629,7 @@ OPTIONAL_TABLES = (
     "checks",
     "gear",
     "hoist",
+    "shaft",
 )
 """Tables that describe a part the drive may not have: absent means no such part."""
 DERIVED_FIELDS = {
@@ -669,7 +718,35 @@ class Motor:
         Eddy-current drag of the armature iron [N*m*s/rad]: loss ``B_e w^2``. Both iron terms
         are booked as ``energy_iron_loss_J``.
     kind : str
-        Machine kind; only ``"permanent_magnet"`` so far.
+        ``"permanent_magnet"`` (default), ``"separately_excited"``, ``"shunt"``, ``"series"``
+        or ``"compound"`` (:mod:`dcsim.engine.machine_kernel`). For the wound-field kinds
+        ``torque_constant`` is derived: the flux constant at the field's steady current
+        (series: at the locked-rotor current), used for the step choice and the tuning
+        plants; the simulation follows the field.
+    field_resistance, field_inductance : float or None
+        Field winding [ohm, H] (series machine: the series winding).
+    mutual_inductance : float or None
+        Field-armature mutual inductance [H]: back-EMF ``M i_f w`` (linear magnetics).
+    magnetisation : tuple of (float, float) or None
+        Magnetisation curve: field current [A] against back-EMF [V] at
+        ``magnetisation_speed`` [rad/s]; strictly increasing, from 0 A; saturation is in it.
+    field_voltage : float or None
+        Separately excited: the field supply [V].
+    base_speed : float or None
+        Separately excited: above this speed [rad/s] the field is weakened (flux ~ 1/speed).
+    compound : str
+        ``"cumulative"`` or ``"differential"`` (compound machine).
+    series_field_resistance, series_field_inductance, series_turns_ratio : float or None
+        Compound machine: the series winding [ohm, H] and its ampere-turns per armature amp
+        expressed in shunt-field amps [-].
+    max_speed : float or None
+        Over-speed limit [rad/s]: a run that exceeds it stops with a message (series
+        machines default to 3 x the speed at which the back-EMF at the locked-rotor flux
+        equals the supply).
+    commutator_segments : float or None
+        Segments (coils) of the commutator: torque and back-EMF ripple (None: smooth).
+    pole_pairs : float
+        Pole pairs; the ripple repeats ``pole_pairs`` times per turn.
     nominal_voltage : float or None
         Catalogue: the voltage the other figures are given at [V].
     no_load_speed, no_load_current : float or None
@@ -701,6 +778,20 @@ class Motor:
     hysteresis_loss_torque: float = 0.0
     eddy_loss_coefficient: float = 0.0
     kind: str = "permanent_magnet"
+    field_resistance: float | None = None
+    field_inductance: float | None = None
+    mutual_inductance: float | None = None
+    magnetisation: tuple[tuple[float, float], ...] | None = None
+    magnetisation_speed: float | None = None
+    field_voltage: float | None = None
+    base_speed: float | None = None
+    compound: str = "cumulative"
+    series_field_resistance: float | None = None
+    series_field_inductance: float | None = None
+    series_turns_ratio: float | None = None
+    max_speed: float | None = None
+    commutator_segments: float | None = None
+    pole_pairs: float = 1.0
     nominal_voltage: float | None = None
     no_load_speed: float | None = None
     no_load_current: float | None = None
@@ -776,6 +867,31 @@ class Hoist:
     mass: float = 0.0
     drum_radius: float = 0.0
     gravity: float = STANDARD_GRAVITY_M_S2
+
+
+@dataclass(frozen=True)
+class Shaft:
+    """A compliant shaft (coupling) between the rotor and the load, with backlash.
+
+    Values at the motor shaft (a gear's ratio referred through: stiffness and damping on the
+    load side divide by ``N^2``, the play multiplies by ``N``). The rotor and the gear's
+    inertia are on the motor side, the load's (and a hoist's) on the other. Torque passed:
+    ``k (d -+ b/2) + c (w_1 - w_2)`` outside the play ``|d| <= b/2``, zero inside it (the
+    dead-zone model; Nordin & Gutman, Automatica 38 (2002) 1633).
+
+    Attributes
+    ----------
+    stiffness : float
+        Torsional stiffness ``k`` [N*m/rad].
+    damping : float
+        Damping ``c`` while the teeth are in contact [N*m*s/rad].
+    backlash : float
+        Total play ``b`` [rad] (files may write degrees).
+    """
+
+    stiffness: float = 0.0
+    damping: float = 0.0
+    backlash: float = 0.0
 
 
 @dataclass(frozen=True)
@@ -1535,7 +1651,7 @@ class Scenario:
     simulation, motor, load, supply, control, about, bridge
         The tables of the file.
     brake, protection, precharge, battery, fuse, supply_profile, sensors, thermal, checks,
-    gear, hoist
+    gear, hoist, shaft
         Optional parts; ``None`` when the file has no such table.
     events : tuple of Event
         Sorted by time (stable for equal times, in file order).
@@ -1561,6 +1677,7 @@ class Scenario:
     checks: Checks | None = None
     gear: Gear | None = None
     hoist: Hoist | None = None
+    shaft: Shaft | None = None
     events: tuple[Event, ...] = ()
     source: str = "<scenario>"
 
