@@ -145,13 +145,21 @@ def stop_message(sc: Scenario, status: int, t_stop: float, x: np.ndarray, p: np.
         w = abs(float(x[M.X_SPEED]))
         limit = float(p[L.P_WMAX])
         given = sc.motor.max_speed is not None
-        why = (
-            "a series machine without load runs away: its flux falls with the current, so "
-            "the speed rises until something breaks -- couple the load before applying "
-            "voltage, limit the voltage, or add a speed loop"
-            if sc.motor.kind in ("series", "compound")
-            else "check the field (a weak or lost field lets the speed rise) and the load"
-        )
+        if sc.motor.kind == "series":
+            why = (
+                "a series machine without load runs away: its flux falls with the current, so "
+                "the speed rises until something breaks -- couple the load before applying "
+                "voltage, limit the voltage, or add a speed loop"
+            )
+        elif sc.motor.kind == "compound" and sc.motor.compound == "differential":
+            why = (
+                "a differential compound machine's series winding opposes its shunt field, so "
+                "the flux falls as the armature current rises (at the inrush of a start it can "
+                "reverse the flux and start the shaft backwards) -- lower "
+                "motor.series_turns_ratio, limit the starting current, or add a speed loop"
+            )
+        else:
+            why = "check the field (a weak or lost field lets the speed rise) and the load"
         return where + (
             f"the shaft reached {w:.4g} rad/s ({w * 30 / math.pi:.4g} rpm), above the "
             f"over-speed limit motor.max_speed = {limit:.4g} rad/s "
@@ -193,7 +201,7 @@ def simulate_machine(
         "peak_bus_voltage_V": float(acc[M.M_BUS_MAX]),
         "min_bus_voltage_V": float(acc[M.M_BUS_MIN]),
     }
-    summary.update(machine_energy_account(scenario, ki.params, pf, acc, xf))
+    summary.update(machine_energy_account(scenario, ki.params, pf, acc, xf, mi.state0))
     check_finite_totals(scenario.source, summary)
     summary.update(machine_summary(scenario, pf, acc, xf))
     summary.update(
@@ -219,11 +227,17 @@ def simulate_machine(
 
 
 def machine_energy_account(
-    sc: Scenario, p0: np.ndarray, pf: np.ndarray, acc: np.ndarray, xf: np.ndarray
+    sc: Scenario,
+    p0: np.ndarray,
+    pf: np.ndarray,
+    acc: np.ndarray,
+    xf: np.ndarray,
+    x0: np.ndarray | None = None,
 ) -> dict[str, float]:
     """Energy terms [J]; ``energy_from_supply_J`` (armature source plus, for a separately
     excited machine, the field supply: reported alone as ``field_supply_energy_J``) equals
-    the sum of the others plus the residual."""
+    the sum of the others plus the residual. ``x0``: the initial state (a separately excited
+    field starts settled, so its initial magnetic energy is subtracted from the change)."""
     from dcsim.engine.run import with_residual
 
     kind = sc.motor.kind
@@ -243,6 +257,8 @@ def machine_energy_account(
         stored = 0.5 * l_loop * xf[M.X_CURRENT] ** 2 + spring
         if kind in ("separately_excited", "shunt", "compound"):
             stored += 0.5 * p0[L.P_LF] * xf[M.X_FIELD] ** 2
+            if x0 is not None:
+                stored -= 0.5 * p0[L.P_LF] * x0[M.X_FIELD] ** 2
     terms = {
         "energy_from_supply_J": float(acc[M.W_SUPPLY] + acc[M.W_FIELD_SUPPLY]),
         "energy_source_loss_J": float(acc[M.W_SOURCE_LOSS]),

@@ -14,6 +14,7 @@ from typing import Any
 from dcsim.errors import ScenarioError
 from dcsim.plant.field import curve_arrays, flux_constant
 from dcsim.scenario import datasheet
+from dcsim.scenario.schema import KEYS
 
 _Show = Callable[[str], str]
 _Problem = tuple[str, str] | None
@@ -108,8 +109,10 @@ def wound_field_derivation(
             )
     for key in ("resistance", "inertia", *REQUIRED_FOR[kind]):
         if values.get(f"motor.{key}") is None:
+            example = KEYS["motor"][key].example
             raise ScenarioError(
-                f"missing key: a {kind} machine needs motor.{key}, found no {key}",
+                f"missing key: expected {key} in [motor] for a {kind.replace('_', ' ')} "
+                f'machine, e.g. {key} = "{example}", found no {key}',
                 source=source,
                 key=f"motor.{key}",
             )
