@@ -281,6 +281,11 @@ _EV = '[[events]]\nat = "1 ms"\nset = { "load.inertia" = "2e-4 kg*m^2" }\n'
             "no event on load.inertia",
         ),  # fmt: skip
         (
+            dict(load="inertia = 1e-4", rest=_SHAFT + "[gear]\nratio = 5\n" + _EV),
+            "events[0].set.load.inertia",
+            "no event on load.inertia",
+        ),  # fmt: skip  (the gear-referred branch of the event loop checks it too)
+        (
             dict(
                 supply='capacitance = "1 mF"\nresistance = "0.05 ohm"',
                 load="inertia = 1e-4",

@@ -88,6 +88,13 @@ def control_grid(sample_s: float, record_s: float, h_target: float) -> tuple[flo
     return h, max(1, round(sample_s / h)), max(1, round(record_s / h))
 
 
+RUNAWAY_LIMIT_FACTOR = 10.0
+"""Default over-speed limit of a series / differential compound machine, in units of
+``V_s / K`` (``K`` at the locked-rotor field): a linear series machine passes it only below
+about 1 % of its locked-rotor torque (``w = (V/(M i) - R/M)``; at ``i = i_stall / 10``,
+``w = 9 R / M`` with ``V_s / K = R / M``), i.e. when it has truly lost its load
+-- common practice (no source) for a guard that never trips in service."""
+
 SHAFT_KEYS = ("motor.coulomb_friction", "motor.static_friction", "load.torque", "load.inertia")
 """Keys whose value the gear and the hoist refer to the motor shaft (events re-map them)."""
 
@@ -244,8 +251,8 @@ def machine_parameters(sc: Scenario, p: np.ndarray) -> None:
     The series machine's field entries are its series winding; a compound machine's series
     winding is ``P_RSE, P_LSE`` with the signed turns ratio ``P_NSE`` (negative:
     differential). The over-speed limit defaults, for the series and the differential
-    compound machine (which run away without load), to 3 x ``V_s / K`` with ``K`` the
-    derived torque constant.
+    compound machine (which run away without load), to ``RUNAWAY_LIMIT_FACTOR x V_s / K``
+    with ``K`` the derived torque constant.
     """
     m = sc.motor
     p[L.P_KIND] = L.MACHINE_CODE[m.kind]
@@ -259,7 +266,7 @@ def machine_parameters(sc: Scenario, p: np.ndarray) -> None:
     p[L.P_NSE] = -n_se if m.compound == "differential" else n_se
     p[L.P_WBASE] = m.base_speed or 0.0
     runaway = m.kind == "series" or (m.kind == "compound" and m.compound == "differential")
-    default_max = 3.0 * sc.supply.voltage / m.torque_constant if runaway else 0.0
+    default_max = RUNAWAY_LIMIT_FACTOR * sc.supply.voltage / m.torque_constant if runaway else 0.0
     p[L.P_WMAX] = m.max_speed if m.max_speed is not None else default_max
     p[L.P_NSEG] = m.commutator_segments or 0.0
     p[L.P_POLES] = m.pole_pairs
@@ -331,6 +338,13 @@ def assemble(sc: Scenario) -> KernelInputs:
                     p_ev[i_row] = v_row
             shaft_rows = [row for row in shaft_rows if row[0] != ev.at]
         for key, value in ev.changes:
+            if key == "load.inertia" and sc.shaft is not None:
+                raise ScenarioError(
+                    "expected no event on load.inertia with a compliant [shaft] (a mass "
+                    "engaging on the far side of the shaft is not modelled), found one",
+                    source=sc.source,
+                    key=f"events[{n}].set.{key}",
+                )
             if referred and key in SHAFT_KEYS:
                 continue
             if key not in PARAM_OF_KEY:
@@ -345,13 +359,6 @@ def assemble(sc: Scenario) -> KernelInputs:
                 raise ScenarioError(
                     "expected no event on motor.field_voltage: only a separately excited "
                     f"machine has a field supply, found one on a {sc.motor.kind} machine",
-                    source=sc.source,
-                    key=f"events[{n}].set.{key}",
-                )
-            if key == "load.inertia" and sc.shaft is not None:
-                raise ScenarioError(
-                    "expected no event on load.inertia with a compliant [shaft] (a mass "
-                    "engaging on the far side of the shaft is not modelled), found one",
                     source=sc.source,
                     key=f"events[{n}].set.{key}",
                 )

@@ -17,7 +17,7 @@ import numpy as np
 
 from dcsim.engine import layout as L
 from dcsim.engine import machine_layout as M
-from dcsim.engine.assemble import KernelInputs, assemble
+from dcsim.engine.assemble import RUNAWAY_LIMIT_FACTOR, KernelInputs, assemble
 from dcsim.errors import SimulationError
 from dcsim.plant.field import curve_arrays
 from dcsim.results.control import control_columns, control_summary
@@ -145,6 +145,7 @@ def stop_message(sc: Scenario, status: int, t_stop: float, x: np.ndarray, p: np.
         w = abs(float(x[M.X_SPEED]))
         limit = float(p[L.P_WMAX])
         given = sc.motor.max_speed is not None
+        default = f"default {RUNAWAY_LIMIT_FACTOR:g} x V_s / K"
         if sc.motor.kind == "series":
             why = (
                 "a series machine without load runs away: its flux falls with the current, so "
@@ -163,7 +164,7 @@ def stop_message(sc: Scenario, status: int, t_stop: float, x: np.ndarray, p: np.
         return where + (
             f"the shaft reached {w:.4g} rad/s ({w * 30 / math.pi:.4g} rpm), above the "
             f"over-speed limit motor.max_speed = {limit:.4g} rad/s "
-            f"({'given' if given else 'default 3 x V_s / K'}); {why}"
+            f"({'given' if given else default}); {why}"
         )
     if status == L.STATUS_REGEN_NO_PATH:
         return where + (

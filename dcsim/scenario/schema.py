@@ -741,7 +741,7 @@ class Motor:
         expressed in shunt-field amps [-].
     max_speed : float or None
         Over-speed limit [rad/s]: a run that exceeds it stops with a message (series
-        machines default to 3 x the speed at which the back-EMF at the locked-rotor flux
+        machines default to 10 x the speed at which the back-EMF at the locked-rotor flux
         equals the supply).
     commutator_segments : float or None
         Segments (coils) of the commutator: torque and back-EMF ripple (None: smooth).
