@@ -79,3 +79,26 @@ def test_readme_states_the_caution_and_two_commands():
 
 def _blocks_in(text: str, lang: str) -> list[str]:
     return re.findall(rf"```{lang}\n(.*?)```", text, flags=re.S)
+
+
+def test_readme_machine_library_block_loads_and_runs():
+    block = next(b for b in _blocks("toml") if 'kind = "separately_excited"' in b)
+    rest = """
+[simulation]
+duration = "0.5 s"
+[supply]
+voltage = "220 V"
+[control]
+voltage = "220 V"
+[load]
+torque = "5 N*m"
+inertia = "0.05 kg*m^2"
+"""
+    sc = dcsim.load_scenario_text(block + rest, source="README.md")
+    res = dcsim.simulate(sc)
+    s = res.summary
+    largest = max(abs(v) for k, v in s.items() if k.endswith("_J") and "residual" not in k)
+    # Source: conservation of energy (the account of the contract closes).
+    assert abs(s["energy_balance_residual_J"]) <= 1e-6 * largest
+    assert s["machine_kind"] == "separately_excited"
+    assert s["shaft_resonance_Hz"] > 0.0
