@@ -162,6 +162,22 @@ PULSE_SUBSTEPS = 8
 
 
 @njit(cache=True, error_model="numpy", inline="always")
+def table_lookup(a, xs, ys):
+    """Linear interpolation of the table ``(xs, ys)`` at ``a`` (``xs`` strictly increasing,
+    ``xs[0] <= a < xs[-1]``): a bisection written out, the scalar core of ``np.interp``
+    without its array set-up (the lookup runs six times per Runge-Kutta sub-step)."""
+    lo = 0
+    hi = xs.shape[0] - 1
+    while hi - lo > 1:
+        mid = (lo + hi) >> 1
+        if xs[mid] <= a:
+            lo = mid
+        else:
+            hi = mid
+    return ys[lo] + (ys[hi] - ys[lo]) * (a - xs[lo]) / (xs[hi] - xs[lo])
+
+
+@njit(cache=True, error_model="numpy", inline="always")
 def curve_flux(m, p, mag_i, mag_k):
     """Flux constant ``Phi(m)`` [V*s/rad] at field m.m.f. ``m`` [field amps], odd in ``m``.
 
@@ -176,8 +192,10 @@ def curve_flux(m, p, mag_i, mag_k):
     elif a >= mag_i[n - 1]:
         slope = (mag_k[n - 1] - mag_k[n - 2]) / (mag_i[n - 1] - mag_i[n - 2])
         k = mag_k[n - 1] + slope * (a - mag_i[n - 1])
+    elif a <= mag_i[0]:
+        k = mag_k[0]
     else:
-        k = np.interp(a, mag_i, mag_k)
+        k = table_lookup(a, mag_i, mag_k)
     return k if m >= 0.0 else -k
 
 
@@ -193,7 +211,7 @@ def curve_current(k, p, mag_i, mag_k):
     if k >= mag_k[n - 1]:
         slope = (mag_k[n - 1] - mag_k[n - 2]) / (mag_i[n - 1] - mag_i[n - 2])
         return mag_i[n - 1] + (k - mag_k[n - 1]) / slope
-    return np.interp(k, mag_k, mag_i)
+    return table_lookup(k, mag_k, mag_i)
 
 
 @njit(cache=True, error_model="numpy", inline="always")
