@@ -22,7 +22,10 @@ machine too: the row's ``T_h |w| + B_e w^2`` (:mod:`dcsim.plant.machine`), scale
 to the run's ``energy_iron_loss_J``, enters the **housing node** of the two-node network (the
 armature iron sits in the rotor and stator body, not in the winding's copper; a lumped split
 of our own, no source) and the **winding node** of the one-node model (its only node). Brush
-losses are not fed to the network (they heat the commutator, outside both nodes).
+losses are not fed to the network (they heat the commutator, outside both nodes). A
+wound-field machine's field copper loss (:func:`field_loss_rows`, scaled to
+``energy_field_copper_loss_J``) goes where the iron loss goes: the field poles sit in the
+stator body (the same lumped split); the field resistances stay at their given values.
 
 References
 ----------
@@ -190,10 +193,11 @@ def _temperatures(
     w = result.trace["speed_rad_s"]
     iron = m.hysteresis_loss_torque * np.abs(w) + m.eddy_loss_coefficient * w * w
     iron = _scaled_to(t, iron, "energy_iron_loss_J", result)
+    iron = iron + _scaled_to(t, field_loss_rows(sc, result), "energy_field_copper_loss_J", result)
     b_iron = b if not th.two_node else np.array([0.0, 1.0 / th.housing_capacity])
     cycle = sc.simulation.cycle_time
     n = a.shape[0]
-    has_iron = bool(np.any(iron != 0.0))
+    has_iron = bool(np.any(iron != 0.0))  # iron and field copper
     if cycle is not None:
         from_zero = network_rise(t, loss, a, b, np.zeros(n))
         if has_iron:
@@ -206,6 +210,27 @@ def _temperatures(
         if has_iron:  # superposition: the network is linear
             rises = rises + network_rise(t, iron, a, b_iron, np.zeros(n))
     return th.ambient + rises, float(th.ambient + x0[0])
+
+
+def field_loss_rows(sc: Scenario, result: SimulationResult) -> np.ndarray:
+    """Copper loss of a wound-field machine's field windings at each trace row [W].
+
+    Shunt / separately excited ``R_f i_f^2``; series ``R_f i_a^2`` (its series field);
+    compound ``R_f i_f^2 + R_se i_a^2``; zeros for a permanent-magnet machine. The field
+    resistances are held at their given values (they do not follow the temperature).
+    """
+    m = sc.motor
+    i_a = result.trace["current_A"]
+    if m.kind == "permanent_magnet":
+        return np.zeros_like(i_a)
+    rf = m.field_resistance or 0.0
+    if m.kind == "series":
+        return rf * i_a * i_a
+    i_f = result.trace["field_current_A"]
+    loss = rf * i_f * i_f
+    if m.kind == "compound":
+        loss = loss + (m.series_field_resistance or 0.0) * i_a * i_a
+    return loss
 
 
 def _scaled_to(t: np.ndarray, power_W: np.ndarray, key: str, result: SimulationResult):

@@ -213,15 +213,22 @@ def machine_problem(
         )
     if values["motor.brush_drop"] > 0.0:
         refuse.append(("motor.brush_drop", f"no brush drop, found {show('motor.brush_drop')}"))
-    if "thermal" in present:
-        refuse.append(("thermal", "no [thermal] table, found one"))
+    if values["motor.kind"] != "permanent_magnet":
+        for key in ("thermal.magnet_material", "thermal.magnet_coefficient"):
+            if values.get(key) is not None:
+                return (
+                    key,
+                    f"expected no magnet temperature coefficient: a "
+                    f"{values['motor.kind'].replace('_', ' ')} machine has no magnets (its "
+                    f"flux follows the field current), found {show(key)}",
+                )
     if refuse:
         key, expected = refuse[0]
         return (
             key,
             f"expected {expected}: {what} runs on the machine-library kernel, which drives the "
-            "armature through the ideal averaged bridge from the source (no bus circuit, PWM, "
-            "brush drop or winding temperature yet)",
+            "armature through the ideal averaged bridge from the source (no bus circuit, PWM "
+            "or brush drop yet)",
         )
     return None
 
