@@ -35,7 +35,9 @@ eight per commutator pulse, and each sub-step is the classical fourth-order Rung
 method [3]_. The power integrands of the energy account are integrated with the same stages
 (so they are fourth order too). Dry friction is switched at sub-step starts (stuck while the
 net torque is within the breakaway level; a sliding shaft that reverses within a sub-step is
-set to rest), which is first order at those instants only.
+set to rest), which is first order at those instants only; the brushes' contact drop
+(``2 V_b`` against the current, the current held at zero while ``|v_a - e| <= 2 V_b``) is
+switched the same way (:func:`brush_regime`).
 
 References
 ----------
@@ -96,6 +98,7 @@ from dcsim.engine.layout import (
     P_TH,
     P_TL,
     P_TS,
+    P_VBRUSH,
     P_VCMD,
     P_VF,
     P_VS,
@@ -135,6 +138,7 @@ from dcsim.engine.machine_layout import (
     R_LOAD_SPEED,
     R_SHAFT_TORQUE,
     R_SHAFT_TWIST,
+    W_BRUSH_DROP,
     W_BRUSH_FRICTION,
     W_COPPER,
     W_FIELD_COPPER,
@@ -335,16 +339,21 @@ def motor_side_load(x, p, ts):
 
 
 @njit(cache=True, error_model="numpy")
-def derivatives(x, p, mag_i, mag_k, stuck, fsign, dx, pw):
+def derivatives(x, p, mag_i, mag_k, stuck, fsign, csign, dx, pw):
     """Write ``dx/dt`` into ``dx`` and the power integrands into ``pw`` (friction regime
-    ``stuck``, ``fsign`` held over the sub-step)."""
+    ``stuck``, ``fsign`` and the brushes' current direction ``csign`` -- 0: current held at
+    zero -- held over the sub-step)."""
     kind = int(p[P_KIND])
     k, it, vb, va, ib, vf, r_arm, l_arm = operating_point(x, p, mag_i, mag_k)
     ia = x[X_CURRENT]
     w1 = x[X_SPEED]
     compliant = p[P_KSH] > 0.0
     w2 = x[X_LOAD_SPEED] if compliant else w1
-    dx[X_CURRENT] = (va - r_arm * ia - k * w1) / l_arm
+    drop = 2.0 * p[P_VBRUSH] * csign
+    if p[P_VBRUSH] > 0.0 and csign == 0.0:
+        dx[X_CURRENT] = 0.0  # the brushes block: |v_a - e| <= 2 V_b at zero current
+    else:
+        dx[X_CURRENT] = (va - r_arm * ia - k * w1 - drop) / l_arm
     dx[3] = 0.0
     if kind == MACHINE_SEPARATE or kind == MACHINE_SHUNT or kind == MACHINE_COMPOUND:
         dx[X_FIELD] = (vf - p[P_RF] * x[X_FIELD]) / p[P_LF]
@@ -393,6 +402,7 @@ def derivatives(x, p, mag_i, mag_k, stuck, fsign, dx, pw):
     dw = w1 - w2
     pw[W_SHAFT_DAMPING] = p[P_CSH] * dw * dw if (compliant and tw != 0.0) else 0.0
     pw[W_FIELD_SUPPLY] = vf * x[X_FIELD] if kind == MACHINE_SEPARATE else 0.0
+    pw[W_BRUSH_DROP] = drop * ia
     if locked:  # no work is done on a held shaft
         pw[W_FRICTION] = 0.0
         pw[W_LOAD] = 0.0
@@ -411,6 +421,28 @@ def friction_regime(x, p, mag_i, mag_k):
     sliding, breakaway = dry_drag_levels(p[P_TC], p[P_TS], p[P_TBR], p[P_TH])
     drive = k * x[X_CURRENT] - motor_side_load(x, p, ts)
     return friction_state(x[X_SPEED], drive, sliding, breakaway, p[P_LOCK] > 0.5)
+
+
+@njit(cache=True, error_model="numpy", inline="always")
+def brush_regime(x, p, mag_i, mag_k):
+    """Direction of the armature current through the brushes for the next sub-step: its
+    sign, or, at zero current, the sign of the voltage that would drive it if that exceeds
+    the pair's drop ``2 V_b``, else 0 (held at zero: the brush pair behaves as two diodes,
+    as in the ideal kernel's brush regime). 1.0 when the machine has no brush drop."""
+    if p[P_VBRUSH] <= 0.0:
+        return 1.0
+    ia = x[X_CURRENT]
+    if ia > 0.0:
+        return 1.0
+    if ia < 0.0:
+        return -1.0
+    k, it, vb, va, ib, vf, r_arm, l_arm = operating_point(x, p, mag_i, mag_k)
+    drive = va - k * x[X_SPEED]
+    if drive > 2.0 * p[P_VBRUSH]:
+        return 1.0
+    if drive < -2.0 * p[P_VBRUSH]:
+        return -1.0
+    return 0.0
 
 
 @njit(cache=True, error_model="numpy")
@@ -438,16 +470,17 @@ def advance(x, p, mag_i, mag_k, dt, h_rk, t0, acc, s1, s2, s3, s4, q1, q2, q3, q
     compliant = p[P_KSH] > 0.0
     for _ in range(n):
         stuck, fsign = friction_regime(x, p, mag_i, mag_k)
-        derivatives(x, p, mag_i, mag_k, stuck, fsign, s1, q1)
+        csign = brush_regime(x, p, mag_i, mag_k)
+        derivatives(x, p, mag_i, mag_k, stuck, fsign, csign, s1, q1)
         for j in range(N_MSTATE):
             xt[j] = x[j] + 0.5 * hs * s1[j]
-        derivatives(xt, p, mag_i, mag_k, stuck, fsign, s2, q2)
+        derivatives(xt, p, mag_i, mag_k, stuck, fsign, csign, s2, q2)
         for j in range(N_MSTATE):
             xt[j] = x[j] + 0.5 * hs * s2[j]
-        derivatives(xt, p, mag_i, mag_k, stuck, fsign, s3, q3)
+        derivatives(xt, p, mag_i, mag_k, stuck, fsign, csign, s3, q3)
         for j in range(N_MSTATE):
             xt[j] = x[j] + hs * s3[j]
-        derivatives(xt, p, mag_i, mag_k, stuck, fsign, s4, q4)
+        derivatives(xt, p, mag_i, mag_k, stuck, fsign, csign, s4, q4)
         finite = True
         for j in range(N_MSTATE):
             x[j] += hs / 6.0 * (s1[j] + 2.0 * s2[j] + 2.0 * s3[j] + s4[j])
@@ -456,6 +489,8 @@ def advance(x, p, mag_i, mag_k, dt, h_rk, t0, acc, s1, s2, s3, s4, q1, q2, q3, q
             acc[j] += hs / 6.0 * (q1[j] + 2.0 * q2[j] + 2.0 * q3[j] + q4[j])
         if (not stuck) and fsign != 0.0 and x[X_SPEED] * fsign < 0.0:
             x[X_SPEED] = 0.0  # the sliding shaft comes to rest in this sub-step
+        if p[P_VBRUSH] > 0.0 and x[X_CURRENT] * csign < 0.0:
+            x[X_CURRENT] = 0.0  # the current through the brushes dies in this sub-step
         if not compliant:
             x[X_LOAD_SPEED] = x[X_SPEED]
             x[X_LOAD_POSITION] = x[X_POSITION]

@@ -31,7 +31,8 @@ W_GEAR = 8  # gear loss [W]
 W_FIELD_COPPER = 9  # field winding(s) copper loss [W]
 W_SHAFT_DAMPING = 10  # loss in the shaft's damping [W]
 W_FIELD_SUPPLY = 11  # power from the separate field supply [W]
-N_POWER = 12
+W_BRUSH_DROP = 12  # brush contact drop 2 V_b |i_a| [W]
+N_POWER = 13
 
 # Accumulators: the integrals above, then peaks and counters
 M_PEAK_I = N_POWER  # largest |i_a| [A]

@@ -272,6 +272,7 @@ def machine_energy_account(
         "energy_shaft_lock_J": float(acc[M.M_LOCK]),
         "energy_coupling_J": float(acc[M.M_COUPLING]),
         "energy_brush_friction_J": float(acc[M.W_BRUSH_FRICTION]),
+        "energy_brush_drop_J": float(acc[M.W_BRUSH_DROP]),
         "energy_iron_loss_J": float(acc[M.W_IRON]),
         "kinetic_energy_change_J": float(kinetic),
         "stored_energy_change_J": float(stored),

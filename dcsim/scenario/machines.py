@@ -211,8 +211,6 @@ def machine_problem(
         refuse.append(
             ("supply.capacitance", f"no bus capacitance, found {show('supply.capacitance')}")
         )
-    if values["motor.brush_drop"] > 0.0:
-        refuse.append(("motor.brush_drop", f"no brush drop, found {show('motor.brush_drop')}"))
     if values["motor.kind"] != "permanent_magnet":
         for key in ("thermal.magnet_material", "thermal.magnet_coefficient"):
             if values.get(key) is not None:
@@ -227,8 +225,8 @@ def machine_problem(
         return (
             key,
             f"expected {expected}: {what} runs on the machine-library kernel, which drives the "
-            "armature through the ideal averaged bridge from the source (no bus circuit, PWM "
-            "or brush drop yet)",
+            "armature through the ideal averaged bridge from the source (no bus circuit or PWM "
+            "yet)",
         )
     return None
 
