@@ -71,6 +71,7 @@ from dcsim.engine.layout import (
     MACHINE_SHUNT,
     P_B,
     P_BE,
+    P_C,
     P_CSH,
     P_GAP,
     P_GEAR_CONST,
@@ -151,6 +152,7 @@ from dcsim.engine.machine_layout import (
     W_SHAFT_DAMPING,
     W_SOURCE_LOSS,
     W_SUPPLY,
+    X_BUS,
     X_CURRENT,
     X_FIELD,
     X_LOAD_POSITION,
@@ -260,14 +262,22 @@ def field_voltage(x, p, mag_i, mag_k, va):
 
 
 @njit(cache=True, error_model="numpy", inline="always")
-def bridge_point(p, it):
+def bridge_point(x, p, it):
     """Bus voltage, armature voltage and bridge bus current at terminal current ``it``.
 
-    The ideal averaged bridge without capacitor (as in :mod:`dcsim.engine.kernel`): the
-    command when the source can give it, else fully on with the source resistance in the
-    loop.
+    The ideal averaged bridge (as in :mod:`dcsim.engine.kernel`): the command when the bus
+    can give it, else fully on. Without a capacitor the bus is the source behind its
+    resistance (fully on: the source resistance in the loop); with one the bus is the
+    capacitor's voltage ``x[X_BUS]`` and the bridge draws ``v_a i / v_bus`` from it.
     """
     vc = p[P_VCMD]
+    if p[P_C] > 0.0:
+        vb = x[X_BUS]
+        if abs(vc) <= vb:
+            return vb, vc, (vc * it / vb if vb > 0.0 else 0.0)
+        if vc > 0.0:
+            return vb, vb, it
+        return vb, -vb, -it
     vs = p[P_VS]
     rs = p[P_RS]
     full = vs - rs * it if vc > 0.0 else vs + rs * it
@@ -280,6 +290,18 @@ def bridge_point(p, it):
         return vb, vb, it
     vb = vs + rs * it
     return vb, -vb, -it
+
+
+@njit(cache=True, error_model="numpy", inline="always")
+def source_current(x, p, ib):
+    """Current from the source [A]: through its resistance into the bus capacitor, zero
+    while a diode front end (``supply.regenerative = false``) blocks a bus above the source;
+    without a capacitor the bridge's own bus current ``ib``."""
+    if p[P_C] <= 0.0:
+        return ib
+    if p[P_REGEN] < 0.5 and x[X_BUS] > p[P_VS]:
+        return 0.0
+    return (p[P_VS] - x[X_BUS]) / p[P_RS]
 
 
 @njit(cache=True, error_model="numpy", inline="always")
@@ -308,7 +330,7 @@ def operating_point(x, p, mag_i, mag_k):
     n_seg = int(p[P_NSEG])
     if n_seg > 0:
         k *= ripple_factor(p[P_POLES] * x[X_POSITION], n_seg)
-    vb, va, ib = bridge_point(p, it)
+    vb, va, ib = bridge_point(x, p, it)
     vf = field_voltage(x, p, mag_i, mag_k, va)
     return k, it, vb, va, ib, vf, r_arm, l_arm
 
@@ -354,7 +376,8 @@ def derivatives(x, p, mag_i, mag_k, stuck, fsign, csign, dx, pw):
         dx[X_CURRENT] = 0.0  # the brushes block: |v_a - e| <= 2 V_b at zero current
     else:
         dx[X_CURRENT] = (va - r_arm * ia - k * w1 - drop) / l_arm
-    dx[3] = 0.0
+    isup = source_current(x, p, ib)
+    dx[X_BUS] = (isup - ib) / p[P_C] if p[P_C] > 0.0 else 0.0
     if kind == MACHINE_SEPARATE or kind == MACHINE_SHUNT or kind == MACHINE_COMPOUND:
         dx[X_FIELD] = (vf - p[P_RF] * x[X_FIELD]) / p[P_LF]
     else:
@@ -383,8 +406,8 @@ def derivatives(x, p, mag_i, mag_k, stuck, fsign, csign, dx, pw):
             dx[X_LOAD_SPEED] = dx[X_SPEED]
             dx[X_LOAD_POSITION] = dx[X_POSITION]
     pw[W_I2] = ia * ia
-    pw[W_SUPPLY] = p[P_VS] * ib
-    pw[W_SOURCE_LOSS] = p[P_RS] * ib * ib
+    pw[W_SUPPLY] = p[P_VS] * isup
+    pw[W_SOURCE_LOSS] = p[P_RS] * isup * isup
     pw[W_COPPER] = p[P_R] * ia * ia
     pw[W_FRICTION] = p[P_B] * w1 * w1 + (p[P_TC] - p[P_GEAR_COULOMB]) * fsign * w1
     pw[W_LOAD] = (p[P_TL] - p[P_GEAR_CONST]) * w2
@@ -507,7 +530,7 @@ def advance(x, p, mag_i, mag_k, dt, h_rk, t0, acc, s1, s2, s3, s4, q1, q2, q3, q
         acc[M_BUS_MIN] = min(acc[M_BUS_MIN], vb)
         acc[M_PEAK_SPEED] = max(acc[M_PEAK_SPEED], abs(x[X_SPEED]))
         acc[M_PEAK_FIELD] = max(acc[M_PEAK_FIELD], abs(x[X_FIELD]))
-        if p[P_REGEN] < 0.5 and ib < -1e-9 * (1.0 + ia):
+        if p[P_C] <= 0.0 and p[P_REGEN] < 0.5 and ib < -1e-9 * (1.0 + ia):
             return STATUS_REGEN_NO_PATH, t
         if p[P_WMAX] > 0.0 and abs(x[X_SPEED]) > p[P_WMAX]:
             return STATUS_OVERSPEED, t
@@ -529,7 +552,7 @@ def record_row(x, p, mag_i, mag_k, t, rec, row):
     rec[R_BUS_V, row] = vb
     rec[R_MOTOR_TORQUE, row] = k * ia
     rec[R_LOAD_TORQUE, row] = p[P_TL] - p[P_GEAR_CONST]
-    rec[R_SUPPLY_CURRENT, row] = ib
+    rec[R_SUPPLY_CURRENT, row] = source_current(x, p, ib)
     stuck, fsign = friction_regime(x, p, mag_i, mag_k)
     if p[P_LOCK] > 0.5:
         fr = 0.0

@@ -12,7 +12,7 @@ from dcsim.engine.layout import RECORD_NAMES as _BASE_NAMES
 X_CURRENT = 0  # armature current [A]
 X_SPEED = 1  # motor shaft speed [rad/s]
 X_POSITION = 2  # motor shaft angle [rad]
-X_UNUSED = 3  # the bus capacitor's place (no capacitor in this kernel)
+X_BUS = 3  # bus capacitor voltage [V] (unused without a capacitor)
 X_FIELD = 4  # shunt / separate field current [A] (series machine: unused, i_f = i_a)
 X_LOAD_SPEED = 5  # load-side speed of a compliant shaft [rad/s] (rigid: equals X_SPEED)
 X_LOAD_POSITION = 6  # load-side angle [rad] (rigid: equals X_POSITION)

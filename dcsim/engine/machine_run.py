@@ -55,12 +55,16 @@ def needs_machine_kernel(sc: Scenario) -> bool:
 def machine_time_constants(sc: Scenario, p: np.ndarray) -> dict[str, float]:
     """Time constants the sub-step must resolve [s], by name.
 
-    ``armature_loop`` (L_a + series winding) / (R_a + series winding + R_s); ``field``
-    L_f / R_f; ``shaft_resonance`` 1 / w_r with ``w_r = sqrt(k (J1 + J2) / (J1 J2))`` (the
-    two-mass resonance, derived); ``shaft_damping`` J1 J2 / ((J1 + J2) c).
+    ``armature_loop`` (L_a + series winding) / (R_a + series winding + R_s; with a bus
+    capacitor without R_s); ``field`` L_f / R_f; with a capacitor ``bus`` R_s C and
+    ``bus_resonance`` sqrt(L_loop C) (the armature inductance swinging with the capacitor
+    through a fully-on bridge, derived); ``shaft_resonance`` 1 / w_r with
+    ``w_r = sqrt(k (J1 + J2) / (J1 J2))`` (the two-mass resonance, derived);
+    ``shaft_damping`` J1 J2 / ((J1 + J2) c).
     """
     kind = sc.motor.kind
-    r_loop, l_loop = p[L.P_R] + p[L.P_RS], p[L.P_L]
+    cap = p[L.P_C]
+    r_loop, l_loop = p[L.P_R] + (p[L.P_RS] if cap <= 0.0 else 0.0), p[L.P_L]
     if kind == "series":
         r_loop += p[L.P_RF]
         l_loop += p[L.P_LF]
@@ -68,6 +72,9 @@ def machine_time_constants(sc: Scenario, p: np.ndarray) -> dict[str, float]:
         r_loop += p[L.P_RSE]
         l_loop += p[L.P_LSE]
     tau = {"armature_loop": l_loop / r_loop}
+    if cap > 0.0:
+        tau["bus"] = p[L.P_RS] * cap
+        tau["bus_resonance"] = math.sqrt(l_loop * cap)
     if kind in ("separately_excited", "shunt", "compound"):
         tau["field"] = p[L.P_LF] / p[L.P_RF]
     if sc.shaft is not None:
@@ -95,6 +102,7 @@ def machine_inputs(sc: Scenario) -> MachineInputs:
     fastest = min(taus.values())
     h_rk = min(ki.step_s, fastest / SUBSTEPS_PER_TIME_CONSTANT)
     x0 = np.zeros(M.N_MSTATE)
+    x0[M.X_BUS] = ki.state0[L.X_BUS]  # a bus capacitor starts charged to the source
     if sc.motor.kind == "separately_excited":
         x0[M.X_FIELD] = sc.motor.field_voltage / sc.motor.field_resistance  # field on first
     mag_i, mag_k = curve_arrays(sc.motor.magnetisation, sc.motor.magnetisation_speed)
@@ -256,6 +264,8 @@ def machine_energy_account(
         l_loop = p0[L.P_L] + (p0[L.P_LF] if kind == "series" else 0.0)
         l_loop += p0[L.P_LSE] if kind == "compound" else 0.0
         stored = 0.5 * l_loop * xf[M.X_CURRENT] ** 2 + spring
+        if p0[L.P_C] > 0.0 and x0 is not None:
+            stored += 0.5 * p0[L.P_C] * (xf[M.X_BUS] ** 2 - x0[M.X_BUS] ** 2)
         if kind in ("separately_excited", "shunt", "compound"):
             stored += 0.5 * p0[L.P_LF] * xf[M.X_FIELD] ** 2
             if x0 is not None:

@@ -207,10 +207,6 @@ def machine_problem(
     refuse: list[tuple[str, str]] = []
     if values["bridge.model"] != "ideal":
         refuse.append(("bridge.model", f"bridge.model = 'ideal', found {show('bridge.model')}"))
-    if values["supply.capacitance"] > 0.0:
-        refuse.append(
-            ("supply.capacitance", f"no bus capacitance, found {show('supply.capacitance')}")
-        )
     if values["motor.kind"] != "permanent_magnet":
         for key in ("thermal.magnet_material", "thermal.magnet_coefficient"):
             if values.get(key) is not None:
@@ -225,8 +221,8 @@ def machine_problem(
         return (
             key,
             f"expected {expected}: {what} runs on the machine-library kernel, which drives the "
-            "armature through the ideal averaged bridge from the source (no bus circuit or PWM "
-            "yet)",
+            "armature through the ideal averaged bridge (the averaged and switching PWM "
+            "models are not joined to it yet)",
         )
     return None
 
