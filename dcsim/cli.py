@@ -419,17 +419,26 @@ def _cmd_tune(args: argparse.Namespace) -> int:
 
 def _cmd_motor(args: argparse.Namespace) -> int:
     scenario = _load(args.scenario)
-    from dcsim.scenario.datasheet import format_motor, motor_as_dict
+    from dcsim.scenario.datasheet import (
+        format_machine,
+        format_motor,
+        machine_as_dict,
+        motor_as_dict,
+    )
 
     if args.json:
         import json
 
         data = {"source": scenario.source, **motor_as_dict(scenario.motor)}
+        data.update(machine_as_dict(scenario))
         data["caution"] = _CAUTION_EPILOG
         _write(sys.stdout, json.dumps(data, indent=2, allow_nan=False) + "\n")
         return EXIT_OK
     title = f"{args.scenario}: {scenario.about.title}" if scenario.about.title else args.scenario
     text = format_motor(scenario.motor, title=title)
+    machine = format_machine(scenario)
+    if machine:
+        text += "\n\n" + machine
     _write(sys.stdout, f"{text}\n\n{_CAUTION_EPILOG}\n")
     return EXIT_OK
 

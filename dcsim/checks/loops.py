@@ -32,8 +32,19 @@ def loop_checks(sc: Scenario) -> list[Verdict]:
                 "open-loop voltage control: no loop to check",
             )
         ]
+    from dcsim.tuning.plants import machine_problem
     from dcsim.tuning.tuner import tune
 
+    problem = machine_problem(sc)
+    if problem is not None:
+        return [
+            not_applicable(
+                "loops.margins",
+                "loops",
+                "Loop margins",
+                f"the loops of this machine are not analysed: {problem}",
+            )
+        ]
     out = []
     for loop in loops:
         try:

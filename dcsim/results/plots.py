@@ -126,9 +126,26 @@ def _draw_current(ax: Axes, result: SimulationResult, time: _TimeAxis) -> None:
 
 
 def _draw_speed(ax: Axes, result: SimulationResult, time: _TimeAxis) -> None:
-    ax.plot(time.values, result.trace["speed_rad_s"], color=_BLUE, linewidth=1.2, label="actual")
+    shaft = _has_shaft(result)
+    ax.plot(
+        time.values,
+        result.trace["speed_rad_s"],
+        color=_BLUE,
+        linewidth=1.2,
+        label="motor" if shaft else "actual",
+    )
+    if shaft:
+        ax.plot(
+            time.values,
+            result.trace["load_speed_rad_s"],
+            color=_PURPLE,
+            linewidth=1.0,
+            linestyle=(0, (4, 1.5)),
+            label="load side",
+        )
     if result.scenario.control.mode in ("speed", "position"):
         _draw_command(ax, result, time, "speed_command_rad_s")
+    if shaft or result.scenario.control.mode in ("speed", "position"):
         _legend(ax)
     _style(ax, "speed [rad/s]")
     rpm = ax.secondary_yaxis(
@@ -219,6 +236,40 @@ def _draw_position(ax: Axes, result: SimulationResult, time: _TimeAxis) -> None:
     _legend(ax)
 
 
+def _draw_field(ax: Axes, result: SimulationResult, time: _TimeAxis) -> None:
+    """Field current of a wound-field machine (series machine: its armature current)."""
+    ax.plot(time.values, result.trace["field_current_A"], color=_BLUE, linewidth=1.2)
+    _style(ax, "field\ncurrent [A]")
+
+
+def _draw_shaft(ax: Axes, result: SimulationResult, time: _TimeAxis) -> None:
+    """Torque passed by the compliant shaft, against the load torque."""
+    tr = result.trace
+    ax.plot(time.values, tr["shaft_torque_Nm"], color=_BLUE, linewidth=1.2, label="shaft")
+    ax.plot(
+        time.values,
+        tr["load_torque_Nm"],
+        color=_PURPLE,
+        linewidth=1.0,
+        linestyle=(0, (4, 1.5)),
+        label="load",
+    )
+    _style(ax, "shaft\ntorque [N·m]")
+    _legend(ax)
+
+
+def _has_field(result: SimulationResult) -> bool:
+    """The trace has a field current that is not zero throughout."""
+    if "field_current_A" not in result.trace:
+        return False
+    return bool(np.any(np.asarray(result.trace["field_current_A"]) != 0.0))
+
+
+def _has_shaft(result: SimulationResult) -> bool:
+    """The run has a compliant shaft (``[shaft]``) and its trace columns."""
+    return result.scenario.shaft is not None and "shaft_torque_Nm" in result.trace
+
+
 _Drawer = Callable[[Axes, SimulationResult, _TimeAxis], None]
 
 _PANELS: tuple[tuple[str, _Drawer], ...] = (
@@ -233,10 +284,20 @@ _SUPPLY_PANEL: tuple[str, _Drawer] = ("supply", _draw_supply)
 """Added for the averaged and switching bridge models (their trace has the bus circuit)."""
 _POSITION_PANEL: tuple[str, _Drawer] = ("position", _draw_position)
 """Added in position control (the reference and the following error)."""
+_FIELD_PANEL: tuple[str, _Drawer] = ("field_current", _draw_field)
+"""Added below the armature current when the trace has a field current that is not zero
+throughout (wound-field machines)."""
+_SHAFT_PANEL: tuple[str, _Drawer] = ("shaft_torque", _draw_shaft)
+"""Added below the torques with a compliant ``[shaft]`` (the speed panel then shows the load
+side's speed beside the motor's)."""
 
 
 def _panels(result: SimulationResult) -> tuple[tuple[str, _Drawer], ...]:
     panels = _PANELS
+    if _has_field(result):
+        panels = panels[:1] + (_FIELD_PANEL,) + panels[1:]
+    if _has_shaft(result):
+        panels = panels + (_SHAFT_PANEL,)
     if "reference_position_rad" in result.trace:
         panels = (_POSITION_PANEL,) + panels
     if "brake_current_A" in result.trace:
@@ -295,7 +356,9 @@ def plot_overview(result: SimulationResult) -> Figure:
     Panels, top to bottom: armature current [A]; speed [rad/s] with a secondary scale in rpm;
     bus and armature voltage [V]; motor and load torque [N*m]; for the averaged and switching
     bridge models also the supply-line and brake resistor currents [A] with the fuse heat
-    fraction. Scenario events are dashed
+    fraction. A wound-field machine adds its field current [A] below the armature current; a
+    compliant ``[shaft]`` adds the shaft torque [N*m] against the load torque, and the load
+    side's speed beside the motor's. Scenario events are dashed
     vertical lines labelled with the key they change. The time axis is in ms when the run is
     shorter than 1 s. The footer carries the caution line.
 
@@ -330,7 +393,8 @@ def plot_quantity(result: SimulationResult, name: str) -> Figure:
     result : SimulationResult
         A finished run.
     name : str
-        ``"current"``, ``"speed"``, ``"bus_voltage"`` or ``"torque"``.
+        ``"current"``, ``"speed"``, ``"bus_voltage"`` or ``"torque"``; also ``"supply"``,
+        ``"position"``, ``"field_current"`` or ``"shaft_torque"`` where the run has them.
 
     Returns
     -------
@@ -352,7 +416,8 @@ def plot_quantity(result: SimulationResult, name: str) -> Figure:
 
 PLOT_FILES: tuple[str, ...] = ("overview.png",) + tuple(f"{stem}.png" for stem, _ in _PANELS)
 """File names :func:`save_plots` writes, in order (plus ``supply.png`` for the averaged and
-switching bridge models, and ``position.png`` in position control)."""
+switching bridge models, ``position.png`` in position control, ``field_current.png`` for a
+wound-field machine and ``shaft_torque.png`` with a compliant ``[shaft]``)."""
 
 
 def save_plots(result: SimulationResult, out_dir_tmp: str | Path) -> list[Path]:

@@ -45,6 +45,8 @@ _ENERGY_LABELS = {
     "energy_brush_drop_J": "brush contact drop",
     "energy_brush_friction_J": "brush friction",
     "energy_iron_loss_J": "iron loss (hysteresis + eddy current)",
+    "energy_field_copper_loss_J": "field copper loss",
+    "energy_shaft_damping_J": "shaft damping",
 }
 
 

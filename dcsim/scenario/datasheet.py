@@ -60,7 +60,9 @@ __all__ = [
     "CatalogueCheck",
     "Derivation",
     "derive_motor",
+    "format_machine",
     "format_motor",
+    "machine_as_dict",
     "mechanical_time_constant",
     "motor_as_dict",
     "no_load_current",
@@ -780,3 +782,326 @@ def format_motor(motor: Any, *, title: str = "") -> str:
         lines.append("")
         lines += [f"WARNING: {w}" for w in warnings]
     return "\n".join(lines)
+
+
+# --------------------------------------------------------------------------------------------
+# The machine library's keys: field, commutator, shaft (``dcsim motor``)
+# --------------------------------------------------------------------------------------------
+
+_RUNAWAY_KINDS = ("series",)
+"""Kinds that run away without load (and the differential compound machine): they get a
+default over-speed limit (:func:`dcsim.engine.assemble.machine_parameters`)."""
+
+
+def _runaway_factor() -> float | None:
+    """The engine's default over-speed factor (``max_speed = factor * V_s / K``), or ``None``
+    when the engine does not name it as a constant."""
+    from dcsim.engine import assemble
+
+    factor = getattr(assemble, "RUNAWAY_LIMIT_FACTOR", None)
+    return float(factor) if factor is not None else None
+
+
+def _steady_field_current(sc: Any) -> tuple[float, str]:
+    """Field current [A] at which the derived torque constant is taken, and the formula
+    (the rule of :func:`dcsim.scenario.machines.rated_flux_constant`)."""
+    m = sc.motor
+    if m.kind == "separately_excited":
+        return m.field_voltage / m.field_resistance, "field_voltage / field_resistance"
+    if m.kind == "series":
+        return (
+            sc.supply.voltage / (m.resistance + m.field_resistance),
+            "supply.voltage / (resistance + field_resistance), the locked-rotor current",
+        )
+    return sc.supply.voltage / m.field_resistance, "supply.voltage / field_resistance"
+
+
+def _max_speed(sc: Any) -> tuple[float | None, str]:
+    """Over-speed limit [rad/s] (``None`` when not known here) and where it comes from."""
+    m = sc.motor
+    if m.max_speed is not None:
+        return float(m.max_speed), "given"
+    runaway = m.kind in _RUNAWAY_KINDS or (m.kind == "compound" and m.compound == "differential")
+    if not runaway:
+        return None, "none (no over-speed limit)"
+    factor = _runaway_factor()
+    if factor is None:
+        return None, "default"
+    return factor * sc.supply.voltage / m.torque_constant, f"default {factor:g} x V_s / K"
+
+
+def _commutator(m: Any) -> dict[str, Any] | None:
+    if m.commutator_segments is None:
+        return None
+    n, pp = int(m.commutator_segments), int(m.pole_pairs)
+    per_period = n if n % 2 == 0 else 2 * n
+    return {
+        "segments": n,
+        "pole_pairs": pp,
+        "pulses_per_electrical_turn": per_period,
+        "pulses_per_turn": per_period * pp,
+        "ripple_pp_fraction": 1.0 - math.cos(math.pi / per_period),
+    }
+
+
+def _shaft(sc: Any) -> dict[str, Any] | None:
+    if sc.shaft is None:
+        return None
+    from dcsim.engine import layout
+    from dcsim.engine.assemble import parameter_vector
+
+    p = parameter_vector(sc)
+    j1, j2 = float(p[layout.P_J1]), float(p[layout.P_J] - p[layout.P_J1])
+    out: dict[str, Any] = {
+        "stiffness_Nm_per_rad": sc.shaft.stiffness,
+        "damping_Nms_per_rad": sc.shaft.damping,
+        "backlash_rad": sc.shaft.backlash,
+        "motor_side_inertia_kgm2": j1,
+        "load_side_inertia_kgm2": j2,
+        "resonance_rad_s": None,
+        "resonance_Hz": None,
+    }
+    if j2 > 0.0:
+        wr = math.sqrt(sc.shaft.stiffness * (j1 + j2) / (j1 * j2))
+        out["resonance_rad_s"], out["resonance_Hz"] = wr, wr / (2.0 * math.pi)
+    return out
+
+
+def machine_as_dict(sc: Any) -> dict[str, Any]:
+    """The machine-library part of a scenario's motor as JSON-ready objects (SI).
+
+    Parameters
+    ----------
+    sc : Scenario
+        The loaded scenario (the supply voltage and the load side are needed too).
+
+    Returns
+    -------
+    dict
+        ``field`` (wound-field kinds: the field winding, where the flux comes from, the steady
+        field current and the torque constant derived at it, the over-speed limit),
+        ``commutator`` (with ``commutator_segments``) and ``shaft`` (with ``[shaft]``: the
+        two-mass resonance ``sqrt(k (J1 + J2) / (J1 J2))``); each only when it applies.
+    """
+    m = sc.motor
+    out: dict[str, Any] = {}
+    if m.kind != "permanent_magnet":
+        i_f, how = _steady_field_current(sc)
+        w_max, w_from = _max_speed(sc)
+        field: dict[str, Any] = {
+            "kind": m.kind,
+            "field_resistance_ohm": m.field_resistance,
+            "field_inductance_H": m.field_inductance,
+            "field_time_constant_s": m.field_inductance / m.field_resistance,
+            "flux_from": "magnetisation" if m.magnetisation is not None else "mutual_inductance",
+            "mutual_inductance_H": m.mutual_inductance,
+            "magnetisation_points": None if m.magnetisation is None else len(m.magnetisation),
+            "magnetisation_speed_rad_s": m.magnetisation_speed,
+            "steady_field_current_A": i_f,
+            "steady_field_current_from": how,
+            "torque_constant_Nm_per_A": m.torque_constant,
+            "max_speed_rad_s": w_max,
+            "max_speed_from": w_from,
+        }
+        if m.kind == "series":
+            loop_r = m.resistance + m.field_resistance
+            field["armature_loop_time_constant_s"] = (m.inductance + m.field_inductance) / loop_r
+        if m.kind == "separately_excited":
+            field["field_voltage_V"] = m.field_voltage
+            field["base_speed_rad_s"] = m.base_speed
+        if m.kind == "compound":
+            field["compound"] = m.compound
+            field["series_field_resistance_ohm"] = m.series_field_resistance
+            field["series_field_inductance_H"] = m.series_field_inductance
+            field["series_turns_ratio"] = m.series_turns_ratio
+        out["field"] = field
+    commutator = _commutator(m)
+    if commutator is not None:
+        out["commutator"] = commutator
+    shaft = _shaft(sc)
+    if shaft is not None:
+        out["shaft"] = shaft
+    return out
+
+
+def _milli(henry: float) -> str:
+    """An inductance in mH beside the SI value, when below 1 H."""
+    return f"{_g(henry * 1e3)} mH" if henry < 1.0 else ""
+
+
+def _opt(x: float | None, unit: str, digits: int = 4) -> str:
+    return "-" if x is None else f"{_g(x, digits)} {unit}"
+
+
+def format_machine(sc: Any) -> str:
+    """The machine-library part of ``dcsim motor``: field, commutator and shaft sections.
+
+    Parameters
+    ----------
+    sc : Scenario
+        The loaded scenario.
+
+    Returns
+    -------
+    str
+        Lines without a trailing newline; ``""`` for a permanent-magnet motor without
+        commutator ripple or ``[shaft]``.
+    """
+    data = machine_as_dict(sc)
+    m = sc.motor
+    blocks: list[list[tuple[str, str, str, str]]] = []
+    heads: list[str] = []
+    field = data.get("field")
+    if field is not None:
+        kind = field["kind"]
+        winding = "series winding" if kind == "series" else "field"
+        rows = [("kind", kind.replace("_", " "), "", "motor.kind")]
+        rows.append((f"{winding} resistance", f"{_g(m.field_resistance, 6)} ohm", "", "given"))
+        rows.append(
+            (
+                f"{winding} inductance",
+                f"{_g(m.field_inductance, 6)} H",
+                _milli(m.field_inductance),
+                "given",
+            )
+        )
+        tf = field["field_time_constant_s"]
+        rows.append((f"{winding} time constant", f"{_g(tf)} s", f"{_g(tf * 1e3)} ms", "L_f/R_f"))
+        if kind == "series":
+            ta = field["armature_loop_time_constant_s"]
+            rows.append(
+                ("armature loop time constant", f"{_g(ta)} s", f"{_g(ta * 1e3)} ms",
+                 "(L + L_f)/(R + R_f)")
+            )  # fmt: skip
+        if m.magnetisation is not None:
+            ws = m.magnetisation_speed
+            rows.append(
+                (
+                    "flux from",
+                    f"magnetisation curve, {len(m.magnetisation)} points",
+                    f"at {_g(ws)} rad/s ({_g(ws / _RPM)} rpm)",
+                    "K = E / w_m, linear between points",
+                )
+            )
+        else:
+            rows.append(
+                (
+                    "flux from",
+                    f"mutual inductance M = {_g(m.mutual_inductance, 6)} H",
+                    "",
+                    "K = M i_f (linear)",
+                )
+            )
+        if kind == "separately_excited":
+            rows.append(("field voltage", f"{_g(m.field_voltage, 6)} V", "", "given"))
+            if m.base_speed is not None:
+                rows.append(
+                    (
+                        "base speed",
+                        f"{_g(m.base_speed, 6)} rad/s",
+                        f"{_g(m.base_speed / _RPM)} rpm",
+                        "field weakened above it",
+                    )
+                )
+            else:
+                rows.append(("base speed", "none", "", "no field weakening"))
+        if kind == "compound":
+            rows.append(("compound sense", m.compound, "", "motor.compound"))
+            rows.append(
+                ("series winding resistance", f"{_g(m.series_field_resistance, 6)} ohm", "",
+                 "given")
+            )  # fmt: skip
+            rows.append(
+                (
+                    "series winding inductance",
+                    f"{_g(m.series_field_inductance, 6)} H",
+                    _milli(m.series_field_inductance),
+                    "given",
+                )
+            )
+            rows.append(
+                ("series turns ratio", f"{_g(m.series_turns_ratio, 6)}", "",
+                 "series ampere-turns per armature amp, in field amps")
+            )  # fmt: skip
+        i_f = field["steady_field_current_A"]
+        rows.append(
+            (
+                "series field current" if kind == "series" else "steady field current",
+                f"{_g(i_f, 6)} A",
+                "",
+                field["steady_field_current_from"],
+            )
+        )
+        rows.append(
+            (
+                "torque constant",
+                f"{_g(m.torque_constant, 6)} N*m/A",
+                f"at {_g(i_f)} A",
+                "derived: flux constant at that field current",
+            )
+        )
+        w_max = field["max_speed_rad_s"]
+        rows.append(
+            (
+                "max speed",
+                _opt(w_max, "rad/s", 6) if w_max is not None else field["max_speed_from"],
+                "" if w_max is None else f"{_g(w_max / _RPM)} rpm",
+                field["max_speed_from"] if w_max is not None else "motor.max_speed",
+            )
+        )
+        heads.append(f"Field ({kind.replace('_', ' ')} machine):")
+        blocks.append(rows)
+    com = data.get("commutator")
+    if com is not None:
+        heads.append("Commutator ripple:")
+        blocks.append(
+            [
+                ("segments", f"{com['segments']}", "", "motor.commutator_segments"),
+                ("pole pairs", f"{com['pole_pairs']}", "", "motor.pole_pairs"),
+                (
+                    "pulses",
+                    f"{com['pulses_per_turn']} per turn",
+                    f"{com['pulses_per_electrical_turn']} per pole pair",
+                    "N for even N, 2N for odd N, per pole pair",
+                ),
+                (
+                    "ripple pk-pk / max",
+                    f"{_g(com['ripple_pp_fraction'])}",
+                    f"{_g(100 * com['ripple_pp_fraction'])} %",
+                    "1 - cos(pi/p)",
+                ),
+            ]
+        )
+    sh = data.get("shaft")
+    if sh is not None:
+        heads.append("Shaft (two masses: rotor side J1, load side J2):")
+        b = sh["backlash_rad"]
+        rows = [
+            ("stiffness", f"{_g(sh['stiffness_Nm_per_rad'], 6)} N*m/rad", "", "shaft.stiffness"),
+            ("damping", f"{_g(sh['damping_Nms_per_rad'], 6)} N*m*s/rad", "", "shaft.damping"),
+            ("backlash", f"{_g(b, 6)} rad", f"{_g(math.degrees(b))} deg", "total play"),
+            ("J1 (rotor side)", f"{_g(sh['motor_side_inertia_kgm2'], 6)} kg*m^2", "", ""),
+            ("J2 (load side)", f"{_g(sh['load_side_inertia_kgm2'], 6)} kg*m^2", "", ""),
+        ]
+        if sh["resonance_rad_s"] is not None:
+            rows.append(
+                (
+                    "resonance",
+                    f"{_g(sh['resonance_rad_s'])} rad/s",
+                    f"{_g(sh['resonance_Hz'])} Hz",
+                    "sqrt(k (J1 + J2) / (J1 J2))",
+                )
+            )
+        else:
+            rows.append(("resonance", "-", "", "no load inertia known (J2 = 0)"))
+        blocks.append(rows)
+    lines: list[str] = []
+    for head, rows in zip(heads, blocks, strict=True):
+        widths = [max(len(r[i]) for r in rows) for i in range(3)]
+        lines.append(head)
+        for r in rows:
+            lines.append(
+                f"  {r[0]:<{widths[0]}}  {r[1]:<{widths[1]}}  {r[2]:<{widths[2]}}  {r[3]}".rstrip()
+            )
+        lines.append("")
+    return "\n".join(lines).rstrip("\n")

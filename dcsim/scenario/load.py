@@ -305,9 +305,19 @@ def _release_derived_motor_keys(
       ones keep theirs, now as given values (changing R does not move the inertia that came
       from the mechanical time constant); the checks then show where the catalogue figures
       no longer agree.
+    - A wound-field machine (``motor.kind`` not ``"permanent_magnet"``): its derived
+      ``torque_constant`` is always derived again from the (changed) field and supply.
     """
     derived = [f"motor.{name}" for name, _ in getattr(scenario.motor, "derived", ())]
     if not derived:
+        return
+    if read.values.get("motor.kind", "permanent_magnet") != "permanent_magnet":
+        # A wound-field machine's torque_constant follows its field, never a given value: it
+        # is derived again whatever changed (a change of torque_constant itself is refused).
+        for name in derived:
+            if name not in changed:
+                read.values.pop(name, None)
+                read.given.discard(name)
         return
     catalogue = {f"motor.{k}" for k in datasheet.CATALOGUE_KEYS}
     model = {f"motor.{k}" for k in datasheet.MODEL_KEYS} - {"motor.inductance"}

@@ -51,6 +51,7 @@ _TABLE_ORDER = (
     "load",
     "gear",
     "hoist",
+    "shaft",
     "supply",
     "bridge",
     "brake",

@@ -489,6 +489,19 @@ def _scalar_spec(name: str, source: str, key: str) -> KeySpec:
     return spec
 
 
+def _refuse_derived(name: str, base: Scenario, source: str, key: str) -> None:
+    """A wound-field machine's torque constant is derived from its field: it cannot vary."""
+    if name == "motor.torque_constant" and base.motor.kind != "permanent_magnet":
+        raise ScenarioError(
+            f"expected a key the base scenario takes as written, found motor.torque_constant, "
+            f"which a {base.motor.kind.replace('_', ' ')} machine (motor.kind) derives from its "
+            "field; vary the field instead (motor.field_voltage, motor.field_resistance, "
+            "motor.mutual_inductance, supply.voltage)",
+            source=source,
+            key=key,
+        )
+
+
 def _read_grid(body: Any, base: Scenario, source: str, mode: str) -> tuple[GridAxis, ...]:
     if body is None:
         return ()
@@ -512,6 +525,7 @@ def _read_grid(body: Any, base: Scenario, source: str, mode: str) -> tuple[GridA
         for name, item in members:
             key = f"grid.{label}.{name}" if linked else where
             spec = _scalar_spec(name, source, key)
+            _refuse_derived(name, base, source, key)
             if name in seen:
                 raise ScenarioError(
                     f"expected each key once in [grid], found {name} again",
@@ -638,6 +652,7 @@ def _read_tolerances(
     for name, item in body.items():
         key = f"tolerance.{name}"
         spec = _scalar_spec(name, source, key)
+        _refuse_derived(name, base, source, key)
         if spec.kind != "quantity":
             raise ScenarioError(
                 f"expected a quantity key to put a tolerance on, found {name}, which takes "

@@ -160,6 +160,68 @@ def _pade(delay_s: float) -> control.TransferFunction:
     return control.tf(num, den)
 
 
+LINEAR_KINDS = ("permanent_magnet", "separately_excited")
+"""Machine kinds whose loops the linear plants describe: the torque is ``K i`` with a ``K``
+that does not depend on the loop's own output (a separately excited machine's field has its
+own supply and is settled at ``field_voltage / field_resistance``)."""
+
+_WHY_NOT_LINEAR = {
+    "series": (
+        "its flux follows the armature current (torque ~ M i^2, back-EMF ~ M i w) and the "
+        "series winding is part of the armature loop, so no one linear plant holds"
+    ),
+    "compound": (
+        "its series winding makes the flux follow the armature current and is part of the "
+        "armature loop, and its shunt field follows the armature voltage the loop sets"
+    ),
+    "shunt": (
+        "its field is across the armature terminals, so the flux follows the armature voltage "
+        "the loop itself sets (near zero at standstill), not a fixed field current"
+    ),
+}
+
+
+def machine_problem(sc: Scenario) -> str | None:
+    """Why the linear loop plants do not describe the scenario's machine, or ``None``.
+
+    Only a machine with a torque ``K i`` and ``K`` independent of the loop (permanent magnet,
+    separately excited with a settled field) has the plants of this module; for the other
+    wound-field kinds the derived ``torque_constant`` (the flux at one field current) would
+    give gains and margins that hold at one operating point at best.
+    """
+    kind = sc.motor.kind
+    if kind in LINEAR_KINDS:
+        return None
+    why = _WHY_NOT_LINEAR.get(kind, "its flux is not constant")
+    return (
+        f"expected a machine with a constant torque constant for the linear loop plants "
+        f"(motor.kind = {' or '.join(repr(k) for k in LINEAR_KINDS)}), found motor.kind = "
+        f"{kind!r}: {why}; judge its loops in simulation instead (dcsim run, dcsim sweep over "
+        "the gains)"
+    )
+
+
+def _machine_notes(sc: Scenario) -> list[str]:
+    """What the plants leave out of a machine-library scenario, in words."""
+    m, notes = sc.motor, []
+    if m.kind == "separately_excited":
+        note = (
+            f"the separately excited field settled at field_voltage / field_resistance = "
+            f"{m.field_voltage / m.field_resistance:.4g} A (K = {m.torque_constant:.4g} V*s/rad)"
+        )
+        if m.base_speed is not None:
+            note += (
+                f", below base_speed {m.base_speed:.4g} rad/s (above it the field is weakened "
+                "and K, the plant gain with it, falls as 1/speed)"
+            )
+        notes.append(note)
+    if m.commutator_segments is not None:
+        notes.append("the commutator ripple left out (its mean K)")
+    if sc.shaft is not None:
+        notes.append("the shaft taken as rigid (the [shaft] two-mass resonance is not modelled)")
+    return notes
+
+
 def _loop(sc: Scenario, name: str, sample_time_s: float | None) -> Loop | None:
     loop = getattr(sc.control, name)
     if loop is None and sample_time_s is None:
@@ -223,6 +285,9 @@ def loop_plant(
     """
     if loop not in LOOPS:
         raise ScenarioError(f"expected a loop, one of {', '.join(LOOPS)}, found {loop!r}")
+    problem = machine_problem(sc)
+    if problem is not None:
+        raise ScenarioError(problem, source=sc.source, key="motor.kind")
     inner = inner or {}
     d = 1 if sc.control.computation_delay else 0
     tbl = _loop(sc, loop, sample_time_s)
@@ -231,6 +296,7 @@ def loop_plant(
         f"sampled at {h:g} s through a zero-order hold"
         + (", one sample of computation delay on the voltage" if d else "")
     ]
+    notes += _machine_notes(sc)
     s = control.tf("s")
     if loop == "current":
         pc, why = armature_plant(sc)

@@ -496,7 +496,7 @@ def _worst_case(sc, loop, g, model, disc, tf_s, tolerances, sample_time_s, prefi
         changes = {
             k: sc.get(k) * (1 + sgn * tolerances[k]) for k, sgn in zip(names, signs, strict=True)
         }
-        corner = sc.with_changes(changes)
+        corner = _corner(sc, changes)
         p = loop_plant(corner, loop, sample_time_s=sample_time_s)
         f = analyse(
             _loop_tf(p, g.kp, g.ki, g.kd, model, disc, tf_s),
@@ -520,6 +520,23 @@ def _worst_case(sc, loop, g, model, disc, tf_s, tolerances, sample_time_s, prefi
         if not f.stable:
             worst["unstable_corner"] = {k: float(x) for k, x in changes.items()}
     return worst
+
+
+def _corner(sc: Scenario, changes: dict[str, float]) -> Scenario:
+    """The scenario at one corner of the tolerances.
+
+    A wound-field machine's ``torque_constant`` is derived from its field and cannot be
+    written; its corner value is put into the motor the plants read (the linear plants take
+    ``K`` as a parameter, which is what the tolerance spreads).
+    """
+    k = changes.get("motor.torque_constant")
+    if k is None or sc.motor.kind == "permanent_magnet":
+        return sc.with_changes(changes)
+    import dataclasses
+
+    rest = {name: v for name, v in changes.items() if name != "motor.torque_constant"}
+    corner = sc.with_changes(rest)
+    return dataclasses.replace(corner, motor=dataclasses.replace(corner.motor, torque_constant=k))
 
 
 def with_gains(sc: Scenario, result: TuningResult) -> Scenario:
