@@ -444,3 +444,39 @@ def test_sweep_refuses_the_derived_torque_constant(tmp_path, table):
         run_sweep(sweep, tmp_path / "out", workers=1, report=False)
     assert err.value.key.endswith("motor.torque_constant")
     assert "motor.kind" in str(err.value)
+
+
+@pytest.mark.parametrize(
+    ("kind", "field", "switch"),
+    [
+        ("series", SERIES_FIELD, "control.speed.acceleration_feedforward"),
+        ("shunt", SHUNT_FIELD, "control.current.back_emf_feedforward"),
+        ("compound", COMPOUND_FIELD, "control.speed.friction_feedforward"),
+        (
+            "separately_excited",
+            SEP_FIELD + '\nbase_speed = "300 rpm"',
+            "control.current.back_emf_feedforward",
+        ),
+    ],  # fmt: skip
+)
+def test_feedforward_through_one_torque_constant_is_refused_where_the_flux_varies(
+    kind, field, switch
+):
+    # The controllers' feed-forward scales by one torque constant (dcsim.controllers.cascade):
+    # right only while the flux is constant (Chapman ch. 9, from memory: K phi is set by the
+    # field current, which in these machines follows the currents or, weakened, the speed).
+    table, key = switch.rsplit(".", 1)
+    text = SEP_SPEED.format(kind=kind, field=field).replace(
+        f"[{table}]\n", f"[{table}]\n{key} = true\n"
+    )
+    with pytest.raises(ScenarioError) as err:
+        load_scenario_text(text, source="m.toml")
+    assert err.value.key == switch
+    assert "flux changes" in str(err.value)
+
+
+def test_feedforward_is_accepted_on_a_separately_excited_machine_at_constant_field():
+    text = SEP_SPEED.format(kind="separately_excited", field=SEP_FIELD).replace(
+        "[control.current]\n", "[control.current]\nback_emf_feedforward = true\n"
+    )
+    assert load_scenario_text(text).control.current.back_emf_feedforward

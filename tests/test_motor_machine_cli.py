@@ -162,7 +162,10 @@ def test_separately_excited_field_section(tmp_path, capsys):
     # Source: derived -- E = K w: K = E(1 A) / w_m = 180 V / (1000 rpm in rad/s)
     k = 180.0 / (1000.0 * RPM)
     assert f"{k:.6g} N*m/A" in _row(out, "torque constant")
-    assert "none (no over-speed limit)" in _row(out, "max speed")
+    # field weakening above 800 rpm: the engine's default limit, 4 x base speed (common
+    # practice: a 1:4 field-weakening range; dcsim.engine.assemble.FIELD_WEAKENING_LIMIT)
+    assert f"{4 * 800.0 * RPM:.6g} rad/s" in _row(out, "max speed")
+    assert "default 4 x base_speed" in _row(out, "max speed")
 
     data = _motor(tmp_path, capsys, SEP, as_json=True)
     f = data["field"]
@@ -175,7 +178,7 @@ def test_separately_excited_field_section(tmp_path, capsys):
     assert f["base_speed_rad_s"] == pytest.approx(800.0 * RPM, rel=1e-12)
     assert f["steady_field_current_A"] == pytest.approx(1.0, rel=1e-12)
     assert f["torque_constant_Nm_per_A"] == pytest.approx(k, rel=1e-12)
-    assert f["max_speed_rad_s"] is None
+    assert f["max_speed_rad_s"] == pytest.approx(4 * 800.0 * RPM, rel=1e-12)
     assert "commutator" not in data and "shaft" not in data
 
 
@@ -197,18 +200,13 @@ def test_series_field_section_and_default_over_speed(tmp_path, capsys):
     data = _motor(tmp_path, capsys, text, as_json=True)["field"]
     assert data["steady_field_current_A"] == pytest.approx(i_lr, rel=1e-12)
     assert data["torque_constant_Nm_per_A"] == pytest.approx(0.03 * i_lr, rel=1e-12)
-    factor = getattr(engine_assemble, "RUNAWAY_LIMIT_FACTOR", None)
-    if factor is None:
-        # the engine does not name its factor: no value is claimed
-        assert data["max_speed_rad_s"] is None and data["max_speed_from"] == "default"
-        assert "default" in _row(out, "max speed")
-    else:
-        # Source: derived -- the engine's rule, factor x V_s / K; the same as the kernel's
-        expected = factor * 48.0 / (0.03 * i_lr)
-        assert data["max_speed_rad_s"] == pytest.approx(expected, rel=1e-12)
-        p = engine_assemble.parameter_vector(load_scenario_text(text))
-        assert data["max_speed_rad_s"] == pytest.approx(p[layout.P_WMAX], rel=1e-12)
-        assert f"{expected:.6g} rad/s" in _row(out, "max speed")
+    factor = engine_assemble.RUNAWAY_LIMIT_FACTOR
+    # Source: derived -- the engine's rule, factor x V_s / K; the same as the kernel's
+    expected = factor * 48.0 / (0.03 * i_lr)
+    assert data["max_speed_rad_s"] == pytest.approx(expected, rel=1e-12)
+    p = engine_assemble.parameter_vector(load_scenario_text(text))
+    assert data["max_speed_rad_s"] == pytest.approx(p[layout.P_WMAX], rel=1e-12)
+    assert f"{expected:.6g} rad/s" in _row(out, "max speed")
 
 
 def test_series_given_max_speed(tmp_path, capsys):

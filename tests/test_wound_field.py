@@ -530,7 +530,7 @@ ENERGY_CASES = {
     "shunt": _text("shunt", duration=0.3, record="100 us"),
     "separately_excited": _text("separately_excited", duration=0.3, record="100 us"),
     "weakened": _text("separately_excited", duration=0.3, record="100 us",
-                      extra_motor=f'base_speed = "{W_BASE / 2} rad/s"\n'),
+                      extra_motor=f'base_speed = "{W_BASE / 2} rad/s"\nmax_speed = "2000 rad/s"\n'),
     "cumulative": _compound("cumulative", duration=0.3, record="100 us"),
     "differential": _compound("differential", duration=0.3, record="100 us"),
 }  # fmt: skip

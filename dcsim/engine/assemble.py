@@ -95,6 +95,36 @@ about 1 % of its locked-rotor torque (``w = (V/(M i) - R/M)``; at ``i = i_stall 
 ``w = 9 R / M`` with ``V_s / K = R / M``), i.e. when it has truly lost its load
 -- common practice (no source) for a guard that never trips in service."""
 
+FIELD_WEAKENING_LIMIT = 4.0
+"""Default over-speed limit of a separately excited machine with field weakening, in units of
+its base speed: above the base speed the flux falls as ``1/w`` and nothing but the load holds
+the speed, and wound-field DC machines are commonly built for a field-weakening range of
+about 1:3 to 1:4 -- common practice (no source)."""
+
+
+def default_max_speed(sc: Scenario) -> tuple[float, str]:
+    """The over-speed limit the engine applies when ``motor.max_speed`` is not given [rad/s]
+    (0.0: none) and how it was found, in words.
+
+    Series and differential compound machines (they run away without load):
+    :data:`RUNAWAY_LIMIT_FACTOR` x ``V_s / K`` with ``K`` the derived torque constant; a
+    separately excited machine with ``base_speed``: :data:`FIELD_WEAKENING_LIMIT` x the base
+    speed; the others none.
+    """
+    m = sc.motor
+    if m.kind == "series" or (m.kind == "compound" and m.compound == "differential"):
+        return (
+            RUNAWAY_LIMIT_FACTOR * sc.supply.voltage / m.torque_constant,
+            f"default {RUNAWAY_LIMIT_FACTOR:g} x V_s / K",
+        )
+    if m.kind == "separately_excited" and m.base_speed is not None:
+        return (
+            FIELD_WEAKENING_LIMIT * m.base_speed,
+            f"default {FIELD_WEAKENING_LIMIT:g} x base_speed",
+        )
+    return 0.0, "none (no over-speed limit)"
+
+
 SHAFT_KEYS = ("motor.coulomb_friction", "motor.static_friction", "load.torque", "load.inertia")
 """Keys whose value the gear and the hoist refer to the motor shaft (events re-map them)."""
 
@@ -251,8 +281,8 @@ def machine_parameters(sc: Scenario, p: np.ndarray) -> None:
     The series machine's field entries are its series winding; a compound machine's series
     winding is ``P_RSE, P_LSE`` with the signed turns ratio ``P_NSE`` (negative:
     differential). The over-speed limit defaults, for the series and the differential
-    compound machine (which run away without load), to ``RUNAWAY_LIMIT_FACTOR x V_s / K``
-    with ``K`` the derived torque constant.
+    compound machine (which run away without load) and the field-weakened separately excited
+    one, as :func:`default_max_speed` gives.
     """
     m = sc.motor
     p[L.P_KIND] = L.MACHINE_CODE[m.kind]
@@ -265,9 +295,7 @@ def machine_parameters(sc: Scenario, p: np.ndarray) -> None:
     n_se = m.series_turns_ratio or 0.0
     p[L.P_NSE] = -n_se if m.compound == "differential" else n_se
     p[L.P_WBASE] = m.base_speed or 0.0
-    runaway = m.kind == "series" or (m.kind == "compound" and m.compound == "differential")
-    default_max = RUNAWAY_LIMIT_FACTOR * sc.supply.voltage / m.torque_constant if runaway else 0.0
-    p[L.P_WMAX] = m.max_speed if m.max_speed is not None else default_max
+    p[L.P_WMAX] = m.max_speed if m.max_speed is not None else default_max_speed(sc)[0]
     p[L.P_NSEG] = m.commutator_segments or 0.0
     p[L.P_POLES] = m.pole_pairs
     p[L.P_J1] = m.inertia + (sc.gear.inertia if sc.gear is not None else 0.0)

@@ -17,7 +17,7 @@ import numpy as np
 
 from dcsim.engine import layout as L
 from dcsim.engine import machine_layout as M
-from dcsim.engine.assemble import RUNAWAY_LIMIT_FACTOR, KernelInputs, assemble
+from dcsim.engine.assemble import KernelInputs, assemble, default_max_speed
 from dcsim.errors import SimulationError
 from dcsim.plant.field import curve_arrays
 from dcsim.results.control import control_columns, control_summary
@@ -153,7 +153,7 @@ def stop_message(sc: Scenario, status: int, t_stop: float, x: np.ndarray, p: np.
         w = abs(float(x[M.X_SPEED]))
         limit = float(p[L.P_WMAX])
         given = sc.motor.max_speed is not None
-        default = f"default {RUNAWAY_LIMIT_FACTOR:g} x V_s / K"
+        default = default_max_speed(sc)[1]
         if sc.motor.kind == "series":
             why = (
                 "a series machine without load runs away: its flux falls with the current, so "
@@ -166,6 +166,12 @@ def stop_message(sc: Scenario, status: int, t_stop: float, x: np.ndarray, p: np.
                 "the flux falls as the armature current rises (at the inrush of a start it can "
                 "reverse the flux and start the shaft backwards) -- lower "
                 "motor.series_turns_ratio, limit the starting current, or add a speed loop"
+            )
+        elif sc.motor.kind == "separately_excited" and sc.motor.base_speed is not None:
+            why = (
+                "above motor.base_speed the field is weakened as 1/speed, so the torque falls "
+                "and only the load holds the speed -- a light load runs far past the base "
+                "speed; add a speed loop, raise the load, or give motor.max_speed"
             )
         else:
             why = "check the field (a weak or lost field lets the speed rise) and the load"

@@ -788,19 +788,6 @@ def format_motor(motor: Any, *, title: str = "") -> str:
 # The machine library's keys: field, commutator, shaft (``dcsim motor``)
 # --------------------------------------------------------------------------------------------
 
-_RUNAWAY_KINDS = ("series",)
-"""Kinds that run away without load (and the differential compound machine): they get a
-default over-speed limit (:func:`dcsim.engine.assemble.machine_parameters`)."""
-
-
-def _runaway_factor() -> float | None:
-    """The engine's default over-speed factor (``max_speed = factor * V_s / K``), or ``None``
-    when the engine does not name it as a constant."""
-    from dcsim.engine import assemble
-
-    factor = getattr(assemble, "RUNAWAY_LIMIT_FACTOR", None)
-    return float(factor) if factor is not None else None
-
 
 def _steady_field_current(sc: Any) -> tuple[float, str]:
     """Field current [A] at which the derived torque constant is taken, and the formula
@@ -817,17 +804,15 @@ def _steady_field_current(sc: Any) -> tuple[float, str]:
 
 
 def _max_speed(sc: Any) -> tuple[float | None, str]:
-    """Over-speed limit [rad/s] (``None`` when not known here) and where it comes from."""
+    """Over-speed limit [rad/s] (``None``: none) and where it comes from (the engine's rule,
+    :func:`dcsim.engine.assemble.default_max_speed`)."""
+    from dcsim.engine.assemble import default_max_speed
+
     m = sc.motor
     if m.max_speed is not None:
         return float(m.max_speed), "given"
-    runaway = m.kind in _RUNAWAY_KINDS or (m.kind == "compound" and m.compound == "differential")
-    if not runaway:
-        return None, "none (no over-speed limit)"
-    factor = _runaway_factor()
-    if factor is None:
-        return None, "default"
-    return factor * sc.supply.voltage / m.torque_constant, f"default {factor:g} x V_s / K"
+    value, how = default_max_speed(sc)
+    return (value if value > 0.0 else None), how
 
 
 def _commutator(m: Any) -> dict[str, Any] | None:

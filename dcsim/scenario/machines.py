@@ -180,6 +180,15 @@ def _check_table(table: tuple[tuple[float, float], ...], speed: float | None, so
         )
 
 
+FLUX_FEEDFORWARD_KEYS = (
+    "control.current.back_emf_feedforward",
+    "control.speed.acceleration_feedforward",
+    "control.speed.friction_feedforward",
+)
+"""Controller feed-forward switches that scale by the torque constant (refused where the
+flux varies)."""
+
+
 def machine_problem(
     values: dict[str, Any], present: set[str], given: set[str], show: _Show
 ) -> _Problem:
@@ -216,6 +225,20 @@ def machine_problem(
                     f"{values['motor.kind'].replace('_', ' ')} machine has no magnets (its "
                     f"flux follows the field current), found {show(key)}",
                 )
+    varying = kind in ("series", "shunt", "compound") or (
+        kind == "separately_excited" and values["motor.base_speed"] is not None
+    )
+    for key in FLUX_FEEDFORWARD_KEYS:
+        if varying and values.get(key):
+            return (
+                key,
+                f"expected {key} = false for a {kind.replace('_', ' ')} machine: the "
+                "feed-forward uses one torque constant (the derived motor.torque_constant), "
+                "but this machine's flux changes with its "
+                + ("speed above base_speed" if kind == "separately_excited" else "currents")
+                + ", so the feed-forward would be wrong away from one operating point; found "
+                "true",
+            )
     if refuse:
         key, expected = refuse[0]
         return (
