@@ -8,7 +8,8 @@ Armature (``i_a``), optional field (``i_f``) and one or two rotating masses::
     L_arm di_a/dt = v_a - R_arm i_a - K(m, theta) w_1
     L_f   di_f/dt = v_f - R_f i_f                          (shunt, separate, compound field)
     J_1 dw_1/dt   = K(m, theta) i_a - T_shaft - B w_1 - T_dry sgn(w_1)
-    J_2 dw_2/dt   = T_shaft - T_load                       (compliant shaft; rigid: one mass)
+    J_2 dw_2/dt   = T_shaft - T_load                       (compliant shaft; rigid: one mass;
+                                                            a gear's loss on J_1, see Method)
     T_shaft       = k_s D(theta_1 - theta_2) + c_s (w_1 - w_2)  outside the gap, 0 inside
 
 with the flux constant ``K = Phi(m) r(theta)``: ``Phi`` the magnetisation curve at the field
@@ -37,7 +38,15 @@ method [3]_. The power integrands of the energy account are integrated with the 
 net torque is within the breakaway level; a sliding shaft that reverses within a sub-step is
 set to rest), which is first order at those instants only; the brushes' contact drop
 (``2 V_b`` against the current, the current held at zero while ``|v_a - e| <= 2 V_b``) is
-switched the same way (:func:`brush_regime`).
+switched the same way (:func:`brush_regime`). The contact instants of the
+backlash are not located either: RK4 is first order across a backlash contact instant when
+the shaft has damping (the shaft torque jumps from 0 to ``c_s (w_1 - w_2)`` there), second
+order without damping (the torque is continuous, its rate jumps).
+
+A gear sits on the motor side of a compliant shaft (its inertia in ``J_1``): its loss
+(:func:`dcsim.plant.mechanics.gear_torques`, the constant part and the Coulomb-like part)
+acts on the motor-side mass, the load-side mass sees the load torque referred through the
+loss-free ratio, ``T_L / N``, so the shaft carries ``T_L / N`` at rest or constant speed.
 
 References
 ----------
@@ -338,12 +347,16 @@ def operating_point(x, p, mag_i, mag_k):
 @njit(cache=True, error_model="numpy", inline="always")
 def shaft_torque(x, p):
     """Torque the compliant shaft passes to the load and its twist beyond the play
-    ``(T_shaft, twist)`` [N*m, rad]; zero inside the gap of the backlash [4]_."""
+    ``(T_shaft, twist)`` [N*m, rad]; zero inside the gap of the backlash [4]_. Without
+    backlash the teeth are always in contact (also at zero twist, where the damping still
+    acts)."""
     if p[P_KSH] <= 0.0:
         return 0.0, 0.0
     d = x[X_POSITION] - x[X_LOAD_POSITION]
     half = 0.5 * p[P_GAP]
-    if d > half:
+    if half <= 0.0:
+        tw = d
+    elif d > half:
         tw = d - half
     elif d < -half:
         tw = d + half
@@ -354,10 +367,24 @@ def shaft_torque(x, p):
 
 @njit(cache=True, error_model="numpy", inline="always")
 def motor_side_load(x, p, ts):
-    """Torque opposing the motor-side mass apart from its friction [N*m]."""
+    """Torque opposing the motor-side mass apart from its friction [N*m].
+
+    Compliant shaft: the shaft's torque plus the gear's constant loss part ``P_GEAR_CONST``
+    (``T_const - T_L / N``): the gear sits on the motor side of the shaft (its inertia is in
+    ``J_1``), so its loss acts there and the shaft carries the load's torque through a
+    loss-free ratio, ``T_L / N``, to the load-side mass (:func:`load_side_load`). The
+    gear's Coulomb-like part is in the motor's friction ``P_TC`` either way.
+    """
     if p[P_KSH] > 0.0:
-        return ts
+        return ts + p[P_GEAR_CONST]
     return p[P_TL]
+
+
+@njit(cache=True, error_model="numpy", inline="always")
+def load_side_load(p):
+    """Torque opposing the load-side mass of a compliant shaft [N*m]: the load's torque
+    referred through a loss-free gear, ``T_L / N`` (``P_TL - P_GEAR_CONST``)."""
+    return p[P_TL] - p[P_GEAR_CONST]
 
 
 @njit(cache=True, error_model="numpy")
@@ -400,7 +427,7 @@ def derivatives(x, p, mag_i, mag_k, stuck, fsign, csign, dx, pw):
             dx[X_SPEED] = (k * ia - load1 - b_visc * w1 - sliding * fsign) / j1
         dx[X_POSITION] = w1
         if compliant:
-            dx[X_LOAD_SPEED] = (ts - p[P_TL]) / (p[P_J] - p[P_J1])
+            dx[X_LOAD_SPEED] = (ts - load_side_load(p)) / (p[P_J] - p[P_J1])
             dx[X_LOAD_POSITION] = w2
         else:
             dx[X_LOAD_SPEED] = dx[X_SPEED]
@@ -413,7 +440,7 @@ def derivatives(x, p, mag_i, mag_k, stuck, fsign, csign, dx, pw):
     pw[W_LOAD] = (p[P_TL] - p[P_GEAR_CONST]) * w2
     pw[W_BRUSH_FRICTION] = p[P_TBR] * fsign * w1
     pw[W_IRON] = p[P_TH] * fsign * w1 + p[P_BE] * w1 * w1
-    pw[W_GEAR] = p[P_GEAR_COULOMB] * fsign * w1 + p[P_GEAR_CONST] * w2
+    pw[W_GEAR] = p[P_GEAR_COULOMB] * fsign * w1 + p[P_GEAR_CONST] * w1  # motor side
     fc = 0.0
     if kind == MACHINE_SERIES:
         fc = p[P_RF] * ia * ia
@@ -423,7 +450,8 @@ def derivatives(x, p, mag_i, mag_k, stuck, fsign, csign, dx, pw):
             fc += p[P_RSE] * ia * ia
     pw[W_FIELD_COPPER] = fc
     dw = w1 - w2
-    pw[W_SHAFT_DAMPING] = p[P_CSH] * dw * dw if (compliant and tw != 0.0) else 0.0
+    contact = compliant and (tw != 0.0 or p[P_GAP] <= 0.0)
+    pw[W_SHAFT_DAMPING] = p[P_CSH] * dw * dw if contact else 0.0
     pw[W_FIELD_SUPPLY] = vf * x[X_FIELD] if kind == MACHINE_SEPARATE else 0.0
     pw[W_BRUSH_DROP] = drop * ia
     if locked:  # no work is done on a held shaft
@@ -481,6 +509,24 @@ def substep_count(x, p, dt, h_rk):
     return n
 
 
+@njit(cache=True, error_model="numpy", inline="always")
+def track_peaks(x, p, mag_i, mag_k, t, acc):
+    """Update the peak trackers (armature current and its time, bus voltage extremes, motor
+    speed, field current) with the state ``x`` at time ``t``; returns the bridge's bus
+    current there. Called at every sub-step end and after every event and controller
+    sample, since the bus voltage jumps with a parameter or a new command."""
+    k, it, vb, va, ib, vf, r_arm, l_arm = operating_point(x, p, mag_i, mag_k)
+    ia = abs(x[X_CURRENT])
+    if ia > acc[M_PEAK_I]:
+        acc[M_PEAK_I] = ia
+        acc[M_PEAK_I_TIME] = t
+    acc[M_BUS_MAX] = max(acc[M_BUS_MAX], vb)
+    acc[M_BUS_MIN] = min(acc[M_BUS_MIN], vb)
+    acc[M_PEAK_SPEED] = max(acc[M_PEAK_SPEED], abs(x[X_SPEED]))
+    acc[M_PEAK_FIELD] = max(acc[M_PEAK_FIELD], abs(x[X_FIELD]))
+    return ib
+
+
 @njit(cache=True, error_model="numpy")
 def advance(x, p, mag_i, mag_k, dt, h_rk, t0, acc, s1, s2, s3, s4, q1, q2, q3, q4, xt):
     """Advance ``x`` by ``dt`` [s] in Runge-Kutta sub-steps; returns ``(status, time)``.
@@ -521,15 +567,8 @@ def advance(x, p, mag_i, mag_k, dt, h_rk, t0, acc, s1, s2, s3, s4, q1, q2, q3, q
         acc[M_SUBSTEPS] += 1.0
         if not finite:
             return STATUS_NONFINITE, t
-        k, it, vb, va, ib, vf, r_arm, l_arm = operating_point(x, p, mag_i, mag_k)
+        ib = track_peaks(x, p, mag_i, mag_k, t, acc)
         ia = abs(x[X_CURRENT])
-        if ia > acc[M_PEAK_I]:
-            acc[M_PEAK_I] = ia
-            acc[M_PEAK_I_TIME] = t
-        acc[M_BUS_MAX] = max(acc[M_BUS_MAX], vb)
-        acc[M_BUS_MIN] = min(acc[M_BUS_MIN], vb)
-        acc[M_PEAK_SPEED] = max(acc[M_PEAK_SPEED], abs(x[X_SPEED]))
-        acc[M_PEAK_FIELD] = max(acc[M_PEAK_FIELD], abs(x[X_FIELD]))
         if p[P_C] <= 0.0 and p[P_REGEN] < 0.5 and ib < -1e-9 * (1.0 + ia):
             return STATUS_REGEN_NO_PATH, t
         if p[P_WMAX] > 0.0 and abs(x[X_SPEED]) > p[P_WMAX]:
@@ -614,6 +653,7 @@ def start_run(p, x, mag_i, mag_k, ev_t, ev_i, ev_v, counters, rec, acc, n_ctl, c
     acc[M_BUS_MAX] = vb
     acc[M_BUS_MIN] = vb
     acc[M_PEAK_I] = abs(x[X_CURRENT])
+    track_peaks(x, p, mag_i, mag_k, 0.0, acc)
     record_row(x, p, mag_i, mag_k, 0.0, rec, 0)
     counters[0] = k_ev
     counters[1] = 1
@@ -660,6 +700,10 @@ def run_steps(p, x, mag_i, mag_k, h, h_rk, k_first, k_last, n_steps, n_sub, dura
             while k_ev < n_ev and ev_t[k_ev] == target:
                 apply_event(x, p, ev_i[k_ev], ev_v[k_ev], acc)
                 k_ev += 1
+            if not (n_ctl > 0 and k % n_ctl == 0 and target == t_end):
+                # (a sample at the same instant replaces the command at once: the
+                # state between the two lasts no time and is tracked after the sample)
+                track_peaks(x, p, mag_i, mag_k, t, acc)
         if status != STATUS_OK:
             break
         t = t_end
@@ -668,6 +712,7 @@ def run_steps(p, x, mag_i, mag_k, h, h_rk, k_first, k_last, n_steps, n_sub, dura
             p[P_VCMD] = control_sample(
                 k // n_ctl, t, x[X_CURRENT], x[X_SPEED], x[X_POSITION], vb, cp, cs, rng, segs
             )
+            track_peaks(x, p, mag_i, mag_k, t, acc)
         if k % n_sub == 0 or k == n_steps:
             record_row(x, p, mag_i, mag_k, t, rec, row)
             if n_ctl > 0:
