@@ -124,6 +124,46 @@ def margins(loop) -> tuple[float, float, float, float]:
     return gm, pm, wgc, wpc
 
 
+CANCELLED_TOL = 1e-9
+"""A closed-loop pole and zero closer than this (relative to ``max(1, |p|)``) cancel: the
+mode cannot be seen from the reference to the output (numerical noise leaves an exactly
+cancelled pair about 1e-16 apart) -- common practice (no source)."""
+
+
+def _without_cancelled_modes(closed):
+    """The SISO closed loop with exactly cancelled pole-zero pairs removed.
+
+    A current loop around a motor without viscous friction is the case: the rotor's free
+    integration (a plant pole at ``s = 0``, ``z = 1``) puts a zero at the same place in
+    ``i / v`` (a constant current needs no voltage change once the back-EMF is matched by
+    the integrator), so the closed loop keeps a pole exactly on the stability boundary that
+    the current never shows; rounding puts it at ``|z| = 1 +- 1e-16`` and a plain pole test
+    would call the loop unstable at random. The mode is the speed's, outside the loop's
+    figures (the speed loop closes around it). Other poles are kept as they are, so a truly
+    unstable loop stays unstable (Skogestad & Postlethwaite, *Multivariable Feedback
+    Control*, sec. 4.7: internal stability and hidden modes -- from memory).
+    """
+    poles = list(control.poles(closed))
+    zeros = list(control.zeros(closed))
+    removed = False
+    for pz in list(poles):
+        for zz in zeros:
+            if abs(pz - zz) <= CANCELLED_TOL * max(1.0, abs(pz)):
+                poles.remove(pz)
+                zeros.remove(zz)
+                removed = True
+                break
+    if not removed:
+        return closed
+    # the gain from one point of the frequency response away from the cancelled pairs
+    s0 = complex(0.3, 0.7) if closed.isctime() else complex(0.3, 0.4)
+    shape = np.prod([s0 - zz for zz in zeros]) / np.prod([s0 - pp for pp in poles])
+    gain = complex(closed(s0)) / shape
+    dt = closed.dt if closed.isdtime() else 0
+    return control.ss(control.zpk(zeros, poles, gain.real, dt=dt) if dt else
+                      control.zpk(zeros, poles, gain.real))  # fmt: skip
+
+
 def analyse(loop, *, prefilter=None, t_final_s: float | None = None) -> LoopFigures:
     """Figures of the loop transfer ``loop`` (a python-control system).
 
@@ -143,7 +183,7 @@ def analyse(loop, *, prefilter=None, t_final_s: float | None = None) -> LoopFigu
     lw = _response(loop, w)
     s_mag = np.abs(1.0 / (1.0 + lw))
     t_mag = np.abs(lw / (1.0 + lw))
-    closed = control.feedback(loop, 1)
+    closed = _without_cancelled_modes(control.feedback(loop, 1))
     poles = control.poles(closed)
     stable = bool(np.all(np.abs(poles) < 1.0)) if loop.isdtime() else bool(np.all(poles.real < 0))
     t0 = abs(complex(closed.dcgain())) if stable else math.nan
