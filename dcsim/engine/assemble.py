@@ -30,6 +30,8 @@ PARAM_OF_KEY: dict[str, int] = {
     "supply.regenerative": L.P_REGEN,
     "control.voltage": L.P_VCMD,
     "motor.field_voltage": L.P_VF,
+    "motor.field_resistance": L.P_RF,
+    "motor.series_field_resistance": L.P_RSE,
 }
 """Kernel parameter index of every key that events may change."""
 
@@ -383,6 +385,21 @@ def assemble(sc: Scenario) -> KernelInputs:
                     key=f"events[{n}].set",
                 )
             v = float(value)
+            if key == "motor.field_resistance" and sc.motor.kind == "permanent_magnet":
+                raise ScenarioError(
+                    "expected no event on motor.field_resistance: a permanent-magnet machine "
+                    "has no field winding, found one",
+                    source=sc.source,
+                    key=f"events[{n}].set.{key}",
+                )
+            if key == "motor.series_field_resistance" and sc.motor.kind != "compound":
+                raise ScenarioError(
+                    "expected no event on motor.series_field_resistance: only a compound "
+                    f"machine has a separate series winding, found one on a {sc.motor.kind} "
+                    "machine",
+                    source=sc.source,
+                    key=f"events[{n}].set.{key}",
+                )
             if key == "motor.field_voltage" and sc.motor.kind != "separately_excited":
                 raise ScenarioError(
                     "expected no event on motor.field_voltage: only a separately excited "
@@ -719,7 +736,7 @@ def assemble_bridge(sc: Scenario) -> BridgeInputs:
     events: list[tuple[float, int, int, float]] = []  # (time, order, index, value)
     referred = sc.gear is not None or sc.hoist is not None
     shaft_rows = shaft_event_rows(sc, _bridge_shaft_index()) if referred else []
-    for ev in sc.events:
+    for n, ev in enumerate(sc.events):
         if referred:
             for t_row, i_row, v_row in shaft_rows:
                 if t_row == ev.at:
@@ -728,6 +745,14 @@ def assemble_bridge(sc: Scenario) -> BridgeInputs:
         for key, value in ev.changes:
             if referred and key in SHAFT_KEYS:
                 continue
+            if key not in param_of_key:
+                raise ScenarioError(
+                    f"expected no event on {key} with bridge.model = '{sc.bridge.model}': "
+                    "it belongs to the wound-field machines, which run with the ideal bridge "
+                    "only, found one",
+                    source=sc.source,
+                    key=f"events[{n}].set.{key}",
+                )
             v = float(value)
             if key == "load.inertia":
                 v += sc.motor.inertia

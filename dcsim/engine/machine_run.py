@@ -99,6 +99,11 @@ def machine_inputs(sc: Scenario) -> MachineInputs:
         )
     ki = assemble(sc)
     taus = machine_time_constants(sc, ki.params)
+    p_ev = ki.params.copy()  # the fastest of each over the run (events change R, R_f, R_s)
+    for index, value in zip(ki.event_index, ki.event_value, strict=True):
+        p_ev[int(index)] = value
+        for name, tau in machine_time_constants(sc, p_ev).items():
+            taus[name] = min(taus.get(name, math.inf), tau)
     fastest = min(taus.values())
     h_rk = min(ki.step_s, fastest / SUBSTEPS_PER_TIME_CONSTANT)
     x0 = np.zeros(M.N_MSTATE)

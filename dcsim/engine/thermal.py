@@ -25,7 +25,9 @@ of our own, no source) and the **winding node** of the one-node model (its only 
 losses are not fed to the network (they heat the commutator, outside both nodes). A
 wound-field machine's field copper loss (:func:`field_loss_rows`, scaled to
 ``energy_field_copper_loss_J``) goes where the iron loss goes: the field poles sit in the
-stator body (the same lumped split); the field resistances stay at their given values.
+stator body (the same lumped split), and the field windings' resistances follow that node
+(IEC 60028 copper, events on ``motor.field_resistance`` and, compound,
+``motor.series_field_resistance``, as the armature's follow the winding node).
 
 References
 ----------
@@ -61,6 +63,18 @@ SETTLED_K = 0.01
 
 MAX_PASSES = 12
 """Passes before the coupling is declared unsettled. Project choice (no source)."""
+
+RELAXATION_RANGE = (0.1, 10.0)
+"""Bounds of the relaxation factor between passes. Aitken's dynamic relaxation (B. M. Irons,
+R. C. Tuck, "A version of the Aitken accelerator for computer iteration", Int. J. Numer.
+Meth. Eng. 1 (1969) 275-277) sets it from the last two updates: for a coupling of gain
+``g`` per pass it tends to ``1 / (1 - g)`` -- below 1 for an alternating coupling (the field
+and armature losses of a voltage-fed machine fall as the copper warms), above 1 for a slowly
+converging one (a current-fed winding near its limit). A diverging coupling (``g > 1``,
+thermal runaway) gives a negative factor, held at the lower bound, so it is never driven to
+the fixed point with no physical meaning and is still reported. The upper bound (``g`` up to
+0.9) keeps one noisy estimate from throwing the temperatures far. Project choice (no source)
+for the bounds."""
 
 MIN_SEGMENTS = 20
 MAX_SEGMENTS = 400
@@ -116,6 +130,7 @@ def simulate_with_winding(
     seg_temp = np.tile(th.ambient + x_start, (segments, 1))
     magnets = th.two_node and th.magnet_coefficient_per_K != 0.0
     change = math.inf
+    omega, step_prev = 1.0, None
     for n in range(MAX_PASSES):
         seg_r = resistance_at(scenario.motor.resistance, seg_temp[:, 0], th.reference_temperature)
         seg_k = None
@@ -126,18 +141,28 @@ def simulate_with_winding(
                 th.reference_temperature,
                 th.magnet_coefficient_per_K,
             )
-        variant = _with_segments(scenario, edges, seg_r, seg_k)
+        seg_field = _field_resistances(scenario, seg_temp)
+        variant = _with_segments(scenario, edges, seg_r, seg_k, seg_field)
         result = run(variant, _scaled(progress, n))
         t = result.trace["time_s"]
         row_seg = np.clip(np.searchsorted(edges, t, side="right") - 1, 0, segments - 1)
         r_rows = seg_r[row_seg]
         k_rows = None if seg_k is None else seg_k[row_seg]
-        temps, start = _temperatures(scenario, result, r_rows, a, b)
+        field_rows = {key: v[row_seg] for key, v in seg_field.items()}
+        temps, start = _temperatures(scenario, result, r_rows, a, b, field_rows)
         new_seg = np.column_stack([np.interp(mids, t, temps[:, j]) for j in range(temps.shape[1])])
-        change = float(np.max(np.abs(new_seg - seg_temp)))
+        step = new_seg - seg_temp
+        change = float(np.max(np.abs(step)))
         if change <= SETTLED_K:
             return _finish(scenario, result, temps, r_rows, k_rows, start, passes=n + 1)
-        seg_temp = new_seg
+        if step_prev is not None:
+            d = step - step_prev
+            dd = float(np.sum(d * d))
+            if dd > 0.0:
+                omega = -omega * float(np.sum(step_prev * d)) / dd
+            omega = min(max(omega, RELAXATION_RANGE[0]), RELAXATION_RANGE[1])
+        seg_temp = seg_temp + omega * step
+        step_prev = step
     cycle = scenario.simulation.cycle_time
     raise SimulationError(
         f"{scenario.source}: the winding temperature did not settle in {MAX_PASSES} passes of "
@@ -164,25 +189,55 @@ def _scaled(progress, n: int):
     return lambda f: progress(lo + width * f)
 
 
+def _field_resistances(sc: Scenario, seg_temp: np.ndarray) -> dict[str, np.ndarray]:
+    """Each segment's field-winding resistances [ohm] of a wound-field machine, by key: the
+    field windings sit on the stator poles, so they follow the housing node (one-node model:
+    its node) by IEC 60028 copper, from their values at ``thermal.reference_temperature``."""
+    m, th = sc.motor, sc.thermal
+    if m.kind == "permanent_magnet" or not th.coupled:
+        return {}
+    node = seg_temp[:, 1] if th.two_node else seg_temp[:, 0]
+    out = {"field_resistance": resistance_at(m.field_resistance, node, th.reference_temperature)}
+    if m.kind == "compound":
+        out["series_field_resistance"] = resistance_at(
+            m.series_field_resistance, node, th.reference_temperature
+        )
+    return out
+
+
 def _with_segments(
-    sc: Scenario, edges: np.ndarray, seg_r: np.ndarray, seg_k: np.ndarray | None
+    sc: Scenario,
+    edges: np.ndarray,
+    seg_r: np.ndarray,
+    seg_k: np.ndarray | None,
+    seg_field: dict[str, np.ndarray] | None = None,
 ) -> Scenario:
-    """The scenario with each segment's resistance (and torque constant) set by events."""
+    """The scenario with each segment's resistance (and torque constant, field resistances)
+    set by events."""
+    seg_field = seg_field or {}
     motor = dataclasses.replace(sc.motor, resistance=float(seg_r[0]))
     extra = []
     for m, t in enumerate(edges[1:-1], start=1):
         changes = [("motor.resistance", float(seg_r[m]))]
         if seg_k is not None:
             changes.append(("motor.torque_constant", float(seg_k[m])))
+        changes += [(f"motor.{key}", float(v[m])) for key, v in seg_field.items()]
         extra.append(Event(at=float(t), changes=tuple(changes)))
     if seg_k is not None:
         motor = dataclasses.replace(motor, torque_constant=float(seg_k[0]))
+    if seg_field:
+        motor = dataclasses.replace(motor, **{key: float(v[0]) for key, v in seg_field.items()})
     events = tuple(sorted((*sc.events, *extra), key=lambda e: e.at))
     return dataclasses.replace(sc, motor=motor, events=events)
 
 
 def _temperatures(
-    sc: Scenario, result: SimulationResult, r_rows: np.ndarray, a: np.ndarray, b: np.ndarray
+    sc: Scenario,
+    result: SimulationResult,
+    r_rows: np.ndarray,
+    a: np.ndarray,
+    b: np.ndarray,
+    field_rows: dict[str, np.ndarray] | None = None,
 ) -> tuple[np.ndarray, float]:
     """Node temperatures at each trace row [K] (column 0 the winding), and the winding's at the
     start of the run [K]."""
@@ -193,7 +248,8 @@ def _temperatures(
     w = result.trace["speed_rad_s"]
     iron = m.hysteresis_loss_torque * np.abs(w) + m.eddy_loss_coefficient * w * w
     iron = _scaled_to(t, iron, "energy_iron_loss_J", result)
-    iron = iron + _scaled_to(t, field_loss_rows(sc, result), "energy_field_copper_loss_J", result)
+    field = field_loss_rows(sc, result, field_rows)
+    iron = iron + _scaled_to(t, field, "energy_field_copper_loss_J", result)
     b_iron = b if not th.two_node else np.array([0.0, 1.0 / th.housing_capacity])
     cycle = sc.simulation.cycle_time
     n = a.shape[0]
@@ -212,24 +268,29 @@ def _temperatures(
     return th.ambient + rises, float(th.ambient + x0[0])
 
 
-def field_loss_rows(sc: Scenario, result: SimulationResult) -> np.ndarray:
+def field_loss_rows(
+    sc: Scenario, result: SimulationResult, field_rows: dict[str, np.ndarray] | None = None
+) -> np.ndarray:
     """Copper loss of a wound-field machine's field windings at each trace row [W].
 
     Shunt / separately excited ``R_f i_f^2``; series ``R_f i_a^2`` (its series field);
-    compound ``R_f i_f^2 + R_se i_a^2``; zeros for a permanent-magnet machine. The field
-    resistances are held at their given values (they do not follow the temperature).
+    compound ``R_f i_f^2 + R_se i_a^2``; zeros for a permanent-magnet machine. The
+    resistances at each row come from ``field_rows`` (keys ``field_resistance``,
+    ``series_field_resistance``, as the thermal coupling set them), else the given ones.
     """
     m = sc.motor
     i_a = result.trace["current_A"]
     if m.kind == "permanent_magnet":
         return np.zeros_like(i_a)
-    rf = m.field_resistance or 0.0
+    field_rows = field_rows or {}
+    rf = field_rows.get("field_resistance", m.field_resistance or 0.0)
     if m.kind == "series":
         return rf * i_a * i_a
     i_f = result.trace["field_current_A"]
     loss = rf * i_f * i_f
     if m.kind == "compound":
-        loss = loss + (m.series_field_resistance or 0.0) * i_a * i_a
+        rse = field_rows.get("series_field_resistance", m.series_field_resistance or 0.0)
+        loss = loss + rse * i_a * i_a
     return loss
 
 

@@ -236,7 +236,7 @@ KEYS: dict[str, dict[str, KeySpec]] = {
         # magnetisation_speed), the separate field's supply and base speed, the compound
         # machine's series winding; the over-speed limit that stops a run
         "field_resistance": _q(
-            "ohm", "a resistance", "120 ohm", default=None, constraint="positive"
+            "ohm", "a resistance", "120 ohm", default=None, constraint="positive", changeable=True
         ),
         "field_inductance": _q("H", "an inductance", "8 H", default=None, constraint="positive"),
         "mutual_inductance": _q("H", "an inductance", "0.9 H", default=None, constraint="positive"),
@@ -252,7 +252,7 @@ KEYS: dict[str, dict[str, KeySpec]] = {
         "base_speed": _q("rad/s", "a speed", "1500 rpm", default=None, constraint="positive"),
         "compound": _choice("cumulative", "a compound connection", ("cumulative", "differential")),
         "series_field_resistance": _q(
-            "ohm", "a resistance", "0.05 ohm", default=None, constraint="positive"
+            "ohm", "a resistance", "0.05 ohm", default=None, constraint="positive", changeable=True
         ),
         "series_field_inductance": _q(
             "H", "an inductance", "2 mH", default=None, constraint="positive"
