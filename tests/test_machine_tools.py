@@ -480,3 +480,33 @@ def test_feedforward_is_accepted_on_a_separately_excited_machine_at_constant_fie
         "[control.current]\n", "[control.current]\nback_emf_feedforward = true\n"
     )
     assert load_scenario_text(text).control.current.back_emf_feedforward
+
+
+@pytest.mark.parametrize("key, value", [("motor.field_voltage", "100 V"),
+                                        ("motor.field_resistance", "90 ohm")])  # fmt: skip
+def test_field_event_with_a_pwm_bridge_is_one_message(key, value):
+    text = f"""
+[simulation]
+duration = "5 ms"
+[motor]
+resistance = "1 ohm"
+inductance = "1 mH"
+torque_constant = "0.05 N*m/A"
+inertia = "1e-4 kg*m^2"
+[supply]
+voltage = "12 V"
+resistance = "0.05 ohm"
+capacitance = "470 uF"
+[control]
+voltage = "6 V"
+[bridge]
+model = "averaged"
+frequency = "20 kHz"
+[[events]]
+at = "1 ms"
+set = {{ "{key}" = "{value}" }}
+"""
+    with pytest.raises(ScenarioError) as err:
+        simulate(load_scenario_text(text, source="pwm.toml"))
+    assert err.value.key == f"events[0].set.{key}"
+    assert "ideal bridge" in str(err.value)
