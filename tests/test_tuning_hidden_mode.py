@@ -47,12 +47,12 @@ value = "10 A"
 """
 
 
-@pytest.fixture(scope="module")
-def rig():
+def _rig():
     return load_scenario_text(RIG, source="rig.toml")
 
 
-def test_every_corner_is_stable_and_its_overshoot_finite(rig):
+def test_every_corner_is_stable_and_its_overshoot_finite():
+    rig = _rig()
     tol = {"motor.resistance": 0.1, "motor.torque_constant": 0.1, "motor.inductance": 0.1}
     res = tune(rig, "current", "imc", tolerances=tol)
     assert res.figures.stable
@@ -61,7 +61,8 @@ def test_every_corner_is_stable_and_its_overshoot_finite(rig):
 
 
 @pytest.mark.parametrize("k_factor", [0.9, 1.0, 1.1])
-def test_figures_equal_the_full_loop_step_response(rig, k_factor):
+def test_figures_equal_the_full_loop_step_response(k_factor):
+    rig = _rig()
     res = tune(rig, "current", "imc")
     sc = rig.with_changes({"motor.torque_constant": rig.motor.torque_constant * k_factor})
     plant = loop_plant(sc, "current", sample_time_s=res.sample_time_s)
@@ -89,7 +90,8 @@ def test_figures_equal_the_full_loop_step_response(rig, k_factor):
     assert y[-1] == pytest.approx(static, rel=1e-6)
 
 
-def test_a_truly_unstable_loop_stays_unstable(rig):
+def test_a_truly_unstable_loop_stays_unstable():
+    rig = _rig()
     # Ten times the IMC gain at this sample time drives the sampled loop past its gain
     # margin (Franklin, Powell & Workman, *Digital Control of Dynamic Systems*, root locus of
     # a sampled loop -- from memory); nothing is cancelled away.
