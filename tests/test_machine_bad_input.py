@@ -180,3 +180,15 @@ def test_mutated_wound_field_scenario_raises_only_scenario_error(text):
             i = [p[0] for p in m.magnetisation]
             assert i[0] == 0.0 and all(b > a for a, b in zip(i, i[1:], strict=False))
             assert m.magnetisation_speed > 0.0
+
+
+@pytest.mark.parametrize("kind", ["series", "shunt"])
+def test_zero_supply_voltage_names_the_supply_not_the_magnetics(kind):
+    # Was: "expected a field that makes flux ... (check the magnetisation table)" on
+    # motor.mutual_inductance, though the field current is zero only because the supply is.
+    text = _text(kind).replace('voltage = "48 V"', 'voltage = "0 V"')
+    text = text.replace('voltage = "220 V"', 'voltage = "0 V"')
+    err = _refused(text)
+    assert err.key == "supply.voltage"
+    msg = str(err)
+    assert f"expected a supply voltage > 0 for a {kind} machine" in msg and "found 0 V" in msg

@@ -79,6 +79,14 @@ def rated_flux_constant(values: dict[str, Any], source: str = "<scenario>") -> t
             source=source,
             key="supply.voltage",
         )
+    if kind != "separately_excited" and not vs > 0.0:
+        raise ScenarioError(
+            f"expected a supply voltage > 0 for a {kind} machine (its derived torque constant "
+            "is the flux at the field current the supply drives), found "
+            f"{vs:.6g} V",
+            source=source,
+            key="supply.voltage",
+        )
     if kind == "separately_excited":
         i_f, how = values["motor.field_voltage"] / rf, "field_voltage / field_resistance"
     elif kind == "series":
