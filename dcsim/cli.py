@@ -285,8 +285,11 @@ def _cmd_validate(args: argparse.Namespace) -> int:
     # the run's plan too (step, rows, events against the parameters): what `run` would
     # refuse, `validate` refuses. assemble needs numpy only, not the compiled kernel.
     from dcsim.engine.assemble import assemble, assemble_bridge
+    from dcsim.engine.machine_run import machine_inputs, needs_machine_kernel
 
-    if scenario.bridge.model == "ideal":
+    if needs_machine_kernel(scenario):
+        machine_inputs(scenario)  # its sub-step budget and [shaft] checks too
+    elif scenario.bridge.model == "ideal":
         assemble(scenario)
     else:
         assemble_bridge(scenario)

@@ -407,6 +407,16 @@ def assemble(sc: Scenario) -> KernelInputs:
                     source=sc.source,
                     key=f"events[{n}].set.{key}",
                 )
+            if key == "motor.torque_constant" and sc.motor.kind != "permanent_magnet":
+                kind = sc.motor.kind.replace("_", " ")
+                raise ScenarioError(
+                    "expected no event on motor.torque_constant: a "
+                    f"{kind} machine's flux follows its field (the torque constant is "
+                    "derived, not set; change motor.field_voltage or motor.field_resistance "
+                    "instead), found one",
+                    source=sc.source,
+                    key=f"events[{n}].set.{key}",
+                )
             if key == "load.inertia":
                 v += sc.motor.inertia
             times.append(ev.at)

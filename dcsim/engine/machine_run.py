@@ -17,7 +17,7 @@ import numpy as np
 
 from dcsim.engine import layout as L
 from dcsim.engine import machine_layout as M
-from dcsim.engine.assemble import KernelInputs, assemble, default_max_speed
+from dcsim.engine.assemble import MAX_STEPS, KernelInputs, assemble, default_max_speed
 from dcsim.errors import SimulationError
 from dcsim.plant.field import curve_arrays
 from dcsim.results.control import control_columns, control_summary
@@ -50,6 +50,17 @@ def needs_machine_kernel(sc: Scenario) -> bool:
         or sc.motor.commutator_segments is not None
         or sc.shaft is not None
     )
+
+
+TAU_KEYS = {
+    "armature_loop": "motor.inductance",
+    "field": "motor.field_inductance",
+    "bus": "supply.capacitance",
+    "bus_resonance": "supply.capacitance",
+    "shaft_resonance": "shaft.stiffness",
+    "shaft_damping": "shaft.damping",
+}
+"""The key a too-fast time constant most likely comes from (for the sub-step budget message)."""
 
 
 def machine_time_constants(sc: Scenario, p: np.ndarray) -> dict[str, float]:
@@ -106,6 +117,17 @@ def machine_inputs(sc: Scenario) -> MachineInputs:
             taus[name] = min(taus.get(name, math.inf), tau)
     fastest = min(taus.values())
     h_rk = min(ki.step_s, fastest / SUBSTEPS_PER_TIME_CONSTANT)
+    n_rk = ki.duration_s / h_rk
+    if n_rk > MAX_STEPS:
+        name = min(taus, key=taus.get)
+        raise ScenarioError(
+            f"expected at most {MAX_STEPS:.0e} sub-steps, found {n_rk:.3g} (sub-step "
+            f"{h_rk:.3g} s over {ki.duration_s:.3g} s, set by the fastest time constant, "
+            f"{name} = {fastest:.3g} s): check {TAU_KEYS.get(name, 'the machine keys')} "
+            "(value and unit) or shorten simulation.duration",
+            source=sc.source,
+            key=TAU_KEYS.get(name, "simulation.duration"),
+        )
     x0 = np.zeros(M.N_MSTATE)
     x0[M.X_BUS] = ki.state0[L.X_BUS]  # a bus capacitor starts charged to the source
     if sc.motor.kind == "separately_excited":

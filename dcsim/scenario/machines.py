@@ -8,6 +8,7 @@ does not model, naming the key, what is expected and what was found.
 
 from __future__ import annotations
 
+import math
 from collections.abc import Callable
 from typing import Any
 
@@ -78,6 +79,14 @@ def rated_flux_constant(values: dict[str, Any], source: str = "<scenario>") -> t
             source=source,
             key="supply.voltage",
         )
+    if kind != "separately_excited" and not vs > 0.0:
+        raise ScenarioError(
+            f"expected a supply voltage > 0 for a {kind} machine (its derived torque constant "
+            "is the flux at the field current the supply drives), found "
+            f"{vs:.6g} V",
+            source=source,
+            key="supply.voltage",
+        )
     if kind == "separately_excited":
         i_f, how = values["motor.field_voltage"] / rf, "field_voltage / field_resistance"
     elif kind == "series":
@@ -135,6 +144,14 @@ def wound_field_derivation(
         )
     if table is not None:
         _check_table(table, values["motor.magnetisation_speed"], source)
+    elif "motor.magnetisation_speed" in given:
+        raise ScenarioError(
+            "expected no magnetisation_speed without a magnetisation table (it is the speed "
+            "at which the table's back-EMF was measured; mutual_inductance needs none), found "
+            "magnetisation_speed written",
+            source=source,
+            key="motor.magnetisation_speed",
+        )
     k, formula = rated_flux_constant(values, source)
     if not k > 0.0:
         raise ScenarioError(
@@ -210,6 +227,13 @@ def machine_problem(
                 f"motor.{key}",
                 f"expected a whole number from {low} to 1000, found {show(f'motor.{key}')}",
             )
+    if "shaft" in present and values["shaft.backlash"] >= 2.0 * math.pi:
+        return (
+            "shaft.backlash",
+            f"expected a total play of less than one turn (360 deg), found "
+            f"{show('shaft.backlash')}: more play than a turn is no coupling "
+            "(check the unit: deg, not rad)",
+        )
     if not uses_machine_kernel(values, present):
         return None
     what = _feature(values, present)
