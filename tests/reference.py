@@ -649,6 +649,12 @@ POWER_STAGE_ENERGY_TERMS = (
 )
 """The further terms of the averaged and switching bridge models."""
 
+MACHINE_ENERGY_TERMS = (
+    "energy_field_copper_loss_J",
+    "energy_shaft_damping_J",
+)
+"""The further terms of the machine-library kernel (wound-field machines, compliant shaft)."""
+
 ENERGY_CLOSURE = 1e-6
 """Allowed residual of the energy account, as a fraction of its largest term. The default
 step is a tenth of the fastest time constant, where Simpson's rule on the fastest exponential
@@ -665,7 +671,8 @@ def assert_energy_closes(summary: Mapping[str, float], stored_J: float = 0.0) ->
     capacitor); the stored-energy change is a difference of two such values and carries the
     rounding of that size, so it counts as a term.
     """
-    names = ENERGY_TERMS + tuple(k for k in POWER_STAGE_ENERGY_TERMS if k in summary)
+    extra = POWER_STAGE_ENERGY_TERMS + MACHINE_ENERGY_TERMS
+    names = ENERGY_TERMS + tuple(k for k in extra if k in summary)
     terms = [summary["energy_from_supply_J"]] + [summary[k] for k in names]
     residual = summary["energy_from_supply_J"] - math.fsum(summary[k] for k in names)
     largest = max([abs(v) for v in terms] + [stored_J])

@@ -30,27 +30,13 @@ from scipy.integrate import solve_ivp
 from scipy.optimize import brentq
 
 import dcsim
-from tests.reference import ENERGY_CLOSURE
+from tests.reference import ENERGY_CLOSURE, ENERGY_TERMS, MACHINE_ENERGY_TERMS
 
 R, L, K, J1, J2, KS, V, B = 1.0, 1e-3, 0.05, 1e-4, 3e-4, 4.0, 5.0, 1e-5
 HALF = 0.01  # half the play [rad]: backlash b = 0.02 rad (1.15 deg)
 JR = 1.0 / J1 + 1.0 / J2  # relative acceleration per unit shaft torque [1/(kg*m^2)]
 
-ACCOUNT = (
-    "energy_source_loss_J",
-    "energy_copper_loss_J",
-    "energy_field_copper_loss_J",
-    "energy_friction_J",
-    "energy_to_load_J",
-    "energy_gear_loss_J",
-    "energy_shaft_damping_J",
-    "energy_shaft_lock_J",
-    "energy_coupling_J",
-    "energy_brush_friction_J",
-    "energy_iron_loss_J",
-    "kinetic_energy_change_J",
-    "stored_energy_change_J",
-)
+ACCOUNT = ENERGY_TERMS + MACHINE_ENERGY_TERMS
 """Where the machine kernel's supplied energy goes (dcsim.engine.machine_run)."""
 
 

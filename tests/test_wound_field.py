@@ -25,6 +25,7 @@ import math
 
 import numpy as np
 import pytest
+from reference import assert_energy_closes
 from scipy.integrate import solve_ivp
 from scipy.optimize import brentq
 
@@ -146,39 +147,9 @@ def _compound(
                  extra_motor=extra)  # fmt: skip
 
 
-ACCOUNT = (
-    "energy_source_loss_J",
-    "energy_copper_loss_J",
-    "energy_field_copper_loss_J",
-    "energy_friction_J",
-    "energy_to_load_J",
-    "energy_gear_loss_J",
-    "energy_shaft_damping_J",
-    "energy_shaft_lock_J",
-    "energy_coupling_J",
-    "energy_brush_friction_J",
-    "energy_iron_loss_J",
-    "kinetic_energy_change_J",
-    "stored_energy_change_J",
-)
-"""Where the machine kernel's supplied energy goes (dcsim.engine.machine_run)."""
-
-
-def assert_account_closes(summary) -> None:
-    """Supplied energy = the sum of where it went, recomputed here from the terms.
-    Source: conservation of energy (first law). Tolerance 1e-6 of the largest term: the
-    project's accuracy target (tests/reference.py, ENERGY_CLOSURE); the integrands are
-    integrated with the Runge-Kutta stages (fourth order)."""
-    terms = [summary[k] for k in ACCOUNT]
-    residual = summary["energy_from_supply_J"] - math.fsum(terms)
-    largest = max(abs(v) for v in [summary["energy_from_supply_J"], *terms])
-    assert abs(summary["energy_balance_residual_J"] - residual) <= 1e-12 * largest
-    assert abs(residual) <= 1e-6 * largest, (residual, largest)
-
-
 def _run(text: str):
     res = simulate(load_scenario_text(text, source="quay.toml"))
-    assert_account_closes(res.summary)
+    assert_energy_closes(res.summary)
     return res
 
 
