@@ -247,24 +247,25 @@ def _temperatures(
     m = sc.motor
     w = result.trace["speed_rad_s"]
     iron = m.hysteresis_loss_torque * np.abs(w) + m.eddy_loss_coefficient * w * w
-    iron = _scaled_to(t, iron, "energy_iron_loss_J", result)
+    # the stator's loss: iron and field copper, both into the housing node (two nodes)
+    stator = _scaled_to(t, iron, "energy_iron_loss_J", result)
     field = field_loss_rows(sc, result, field_rows)
-    iron = iron + _scaled_to(t, field, "energy_field_copper_loss_J", result)
-    b_iron = b if not th.two_node else np.array([0.0, 1.0 / th.housing_capacity])
+    stator = stator + _scaled_to(t, field, "energy_field_copper_loss_J", result)
+    b_stator = b if not th.two_node else np.array([0.0, 1.0 / th.housing_capacity])
     cycle = sc.simulation.cycle_time
     n = a.shape[0]
-    has_iron = bool(np.any(iron != 0.0))  # iron and field copper
+    has_stator = bool(np.any(stator != 0.0))
     if cycle is not None:
         from_zero = network_rise(t, loss, a, b, np.zeros(n))
-        if has_iron:
-            from_zero = from_zero + network_rise(t, iron, a, b_iron, np.zeros(n))
+        if has_stator:
+            from_zero = from_zero + network_rise(t, stator, a, b_stator, np.zeros(n))
         x0 = periodic_start_rises(from_zero[-1], a, float(t[-1] - t[0]), cycle)
         rises = from_zero + free_response(a, x0, t)
     else:
         x0 = _initial_rises(th, a)
         rises = network_rise(t, loss, a, b, x0)
-        if has_iron:  # superposition: the network is linear
-            rises = rises + network_rise(t, iron, a, b_iron, np.zeros(n))
+        if has_stator:  # superposition: the network is linear
+            rises = rises + network_rise(t, stator, a, b_stator, np.zeros(n))
     return th.ambient + rises, float(th.ambient + x0[0])
 
 
