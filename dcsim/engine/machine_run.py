@@ -274,12 +274,13 @@ def machine_energy_account(
     pf: np.ndarray,
     acc: np.ndarray,
     xf: np.ndarray,
-    x0: np.ndarray | None = None,
+    x0: np.ndarray,
 ) -> dict[str, float]:
     """Energy terms [J]; ``energy_from_supply_J`` (armature source plus, for a separately
     excited machine, the field supply: reported alone as ``field_supply_energy_J``) equals
     the sum of the others plus the residual. ``x0``: the initial state (a separately excited
-    field starts settled, so its initial magnetic energy is subtracted from the change)."""
+    field starts settled and a bus capacitor charged, so their initial energy is subtracted
+    from the change)."""
     from dcsim.engine.run import with_residual
 
     kind = sc.motor.kind
@@ -297,12 +298,11 @@ def machine_energy_account(
         l_loop = p0[L.P_L] + (p0[L.P_LF] if kind == "series" else 0.0)
         l_loop += p0[L.P_LSE] if kind == "compound" else 0.0
         stored = 0.5 * l_loop * xf[M.X_CURRENT] ** 2 + spring
-        if p0[L.P_C] > 0.0 and x0 is not None:
+        if p0[L.P_C] > 0.0:
             stored += 0.5 * p0[L.P_C] * (xf[M.X_BUS] ** 2 - x0[M.X_BUS] ** 2)
         if kind in ("separately_excited", "shunt", "compound"):
             stored += 0.5 * p0[L.P_LF] * xf[M.X_FIELD] ** 2
-            if x0 is not None:
-                stored -= 0.5 * p0[L.P_LF] * x0[M.X_FIELD] ** 2
+            stored -= 0.5 * p0[L.P_LF] * x0[M.X_FIELD] ** 2
     terms = {
         "energy_from_supply_J": float(acc[M.W_SUPPLY] + acc[M.W_FIELD_SUPPLY]),
         "energy_source_loss_J": float(acc[M.W_SOURCE_LOSS]),
